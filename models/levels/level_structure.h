@@ -1,0 +1,116 @@
+// Level structure of one atom: the Zeeman sublevels of the included ground and excited hyperfine
+// levels of one optical line, their energies in a magnetic field, and the dipole lowering
+// operators A_q between them. This is the contract between the physics (models/) and the engine,
+// which only sees matrices on a basis of sublevels.
+//
+// Conventions (shared/DESIGN.md §3):
+//  * Basis order: ground sublevels first, then excited; within each, hyperfine levels by
+//    ascending F, sublevels by ascending m. Quantization axis along B.
+//  * Energies are angular frequencies in rad/µs, measured from the centroid (hyperfine-free
+//    energy) of the level's own J manifold; the optical frequency between the two centroids is
+//    line_frequency_MHz(). A rotating frame is chosen later by the scenario, not here.
+//  * A_q (q = −1, 0, +1) is dimensionless: ⟨g|A_q|e⟩ = ⟨F_g m_g| d_q |F_e m_e⟩ / ⟨J‖d‖J′⟩ times
+//    the factor that makes Σ_q Σ_g |⟨g|A_q|e⟩|² over *all* ground levels of the line equal 1 for
+//    every excited sublevel e (Wigner–Eckart theorem with the 6j reduction, Condon–Shortley
+//    phases). d_q is the spherical component of the dipole operator, so ⟨g|A_q|e⟩ ≠ 0 only for
+//    m_g = m_e + q: A_{−1} lowers m by one (the atom emits σ+ light, angular momentum +1 along
+//    the axis), A_{+1} raises it (σ− light), A_0 keeps it (π light).
+//  * The physical decay of excited sublevel e is Γ; the part into ground levels that are in the
+//    model is Γ Σ_q ⟨e|A_q†A_q|e⟩, the rest is loss_fraction(e) (counted, never dropped).
+#pragma once
+
+#include <Eigen/Dense>
+#include <string>
+#include <vector>
+
+namespace flyby::levels {
+
+enum class Line { kD1, kD2 };
+enum class GroundZeeman { kLinear, kBreitRabi };
+
+// What to build for a species from the handbook table (models/species).
+struct LevelRequest {
+  std::string species;             // "Rb87", "Rb85", "Cs133", "Na23", "K39"
+  Line line = Line::kD2;
+  std::vector<int> ground_2F;      // twice the ground F values to include, e.g. {4} for F = 2
+  std::vector<int> excited_2F;     // twice the excited F′ values to include
+  double field_G = 0.0;            // magnetic field magnitude, gauss, ≥ 0
+  GroundZeeman ground_zeeman = GroundZeeman::kLinear;
+};
+
+// A model atom given directly (one ground F, one excited F′), for tests and custom lines.
+struct CustomAtom {
+  int ground_2F = 1;               // twice F of the ground level
+  int excited_2F = 3;              // twice F′ of the excited level; |F − F′| ≤ 1, not both 0
+  double ground_gF = 0.0;          // Landé g_F of the ground level
+  double excited_gF = 0.0;         // Landé g_F of the excited level
+  double gamma_MHz = 6.0;          // Γ/2π, MHz, > 0 (population decay rate, natural FWHM)
+  double wavelength_nm = 780.0;    // vacuum wavelength, nm, > 0
+  double field_G = 0.0;            // magnetic field magnitude, gauss, ≥ 0
+};
+
+// One basis state.
+struct Sublevel {
+  bool excited = false;
+  int two_F = 0;                   // 2F
+  int two_m = 0;                   // 2m
+  double energy_rad_per_us = 0.0;  // from the J centroid, see the file comment
+};
+
+// One hyperfine level as included in the model.
+struct HyperfineLevel {
+  bool excited = false;
+  int two_F = 0;
+  double gF = 0.0;                 // Landé g_F (including the nuclear g_I term)
+  double hyperfine_shift_MHz = 0.0;  // zero-field shift from the J centroid, MHz
+};
+
+class LevelStructure {
+ public:
+  // Build from the species table; throws flyby::InputError naming the allowed values when the
+  // species, line or an F value is not possible.
+  static LevelStructure from_species(const LevelRequest& request);
+  // Build a custom model atom; throws flyby::InputError on unphysical values.
+  static LevelStructure from_custom(const CustomAtom& atom);
+
+  int dimension() const;
+  const std::vector<Sublevel>& sublevels() const;
+  const std::vector<HyperfineLevel>& hyperfine_levels() const;
+
+  // Dipole lowering operator A_q, q ∈ {−1, 0, +1}: a dimension × dimension real matrix with
+  // nonzero elements ⟨g|A_q|e⟩ only from excited to ground sublevels with m_g = m_e + q.
+  const Eigen::MatrixXd& lowering(int q) const;
+
+  double gamma_rad_per_us() const;      // Γ
+  double line_frequency_MHz() const;    // optical frequency between the J centroids, MHz
+  double wavelength_nm() const;         // vacuum wavelength of the line
+  double reduced_dipole_C_m() const;    // ⟨J‖e r‖J′⟩ in C·m (Steck's convention)
+  double field_G() const;
+
+  // Fraction of excited sublevel i's decay (index into sublevels()) that goes to ground levels
+  // not in the model; 0 for ground sublevels.
+  double loss_fraction(int i) const;
+
+  // Relative strength S_FF′ = (2F′+1)(2J+1){J J′ 1; F′ F I}² of each included pair.
+  struct Strength {
+    int ground_2F, excited_2F;
+    double S;
+  };
+  std::vector<Strength> strengths() const;
+
+ private:
+  LevelStructure() = default;
+  friend class LevelBuilder;
+  std::vector<Sublevel> sublevels_;
+  std::vector<HyperfineLevel> hyperfine_;
+  Eigen::MatrixXd lowering_[3];
+  std::vector<double> loss_fraction_;
+  std::vector<Strength> strengths_;
+  double gamma_rad_per_us_ = 0.0;
+  double line_frequency_MHz_ = 0.0;
+  double wavelength_nm_ = 0.0;
+  double reduced_dipole_C_m_ = 0.0;
+  double field_G_ = 0.0;
+};
+
+}  // namespace flyby::levels

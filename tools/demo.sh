@@ -1,0 +1,10 @@
+#!/usr/bin/env bash
+# Installs dependencies, builds flyby and runs it on the demo scenario (the README's first command).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash tools/setup-deps.sh
+cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=Release >/dev/null
+cmake --build build -j "${JOBS:-$(nproc)}"
+echo
+echo "== demo: level structure of 87Rb D2, F=2 -> F'=1,2,3 at 1.5 G =="
+./build/tools/flyby levels --species Rb87 --line D2 --ground 2 --excited 1,2,3 --field-G 1.5
