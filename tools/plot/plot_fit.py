@@ -45,9 +45,9 @@ def main():
     for p in fit["parameters"]:
         lines.append("{:<22s} {}".format(p["name"], fmt_value(p["value"], p["std_error"])))
     lines.append("chi2/dof = {:.1f}/{}   p = {:.3g}".format(fit["chi2"], fit["dof"], fit["p_value"]))
-    ax.text(0.99, 0.98, "\n".join(lines), transform=ax.transAxes, ha="right", va="top", fontsize=7,
-            family="monospace", bbox=dict(boxstyle="round", fc="white", ec="0.8", alpha=0.85))
-    ax.legend(loc="lower right", fontsize=8)
+    ax.text(0.985, 0.97, "\n".join(lines), transform=ax.transAxes, ha="right", va="top", fontsize=7,
+            family="monospace", multialignment="left", bbox=dict(boxstyle="round,pad=0.5", fc="white", ec="0.8", alpha=0.85))
+    ax.legend(loc="lower left", fontsize=8)
     ax.grid(alpha=0.25)
     ax.set_title("fit status: {}".format(fit["status"]), fontsize=10)
     ar.axhline(0, color="0.5", lw=0.8)

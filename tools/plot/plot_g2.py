@@ -56,9 +56,9 @@ def main():
             info.append("{} = {}".format(k, meta[k]))
     if info:
         ax.text(0.99, 0.98, "\n".join(info), transform=ax.transAxes, ha="right", va="top", fontsize=7,
-                color="0.3", family="monospace")
+                color="0.3", family="monospace", multialignment="left")
     ax.grid(alpha=0.25)
-    ax.legend(loc="lower right", fontsize=8)
+    ax.legend(loc="upper left", fontsize=8)
     fig.savefig(a.out, format=a.format, dpi=150)
 
 
