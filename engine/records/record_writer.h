@@ -17,8 +17,9 @@ namespace flyby::records {
 
 struct RecordWriterOptions {
   // Tags per HDF5 chunk of /tags/time_ps and /tags/channel; also the writer's buffer size.
-  // Range 1024 .. 16777216. 65536 tags = 576 KiB per chunk pair.
-  std::size_t chunk_tags = 65536;
+  // Range 1024 .. 16777216. 16384 tags = 144 KiB per chunk pair: large enough for fast
+  // sequential I/O, small enough that a short record is not mostly padding.
+  std::size_t chunk_tags = 16384;
   // Tags per entry of the coarse time index /index/time_ps. Range 1 .. 16777216.
   std::size_t index_block_tags = 65536;
   // gzip level of the tag datasets, 0 (off, default: time tags compress poorly) .. 9.
