@@ -209,3 +209,23 @@ TEST_CASE("a CSV export and re-import of a record gives the identical g2", "[cli
   REQUIRE(a.size() > 1000);
   REQUIRE(a == b);
 }
+
+TEST_CASE("flyby plan prints the Fisher-information plan as JSON", "[cli][plan]") {
+  test::ScratchDir dir("analysis-plan");
+  const auto out = dir / "plan.json", err = dir / "stderr.txt";
+  // shared/REFERENCES.md [derived]: 1000 bins of 10 ns, 1000 counts/bin (rates √(1000/W) per s),
+  // contrast 0.05, f = 1 MHz, undamped: σ_f = 1565.5 Hz after the integration giving those counts.
+  const std::string rate = "316227.76601683794";  // √(1000 / 1e-8 s)
+  const std::string cmd = std::string(FLYBY_EXE) + " plan --singles-per-s " + rate +
+                          " --bin-ns 10 --range-ns 10000 --contrast 0.05 --beat-MHz 1 --target beat-freq-kHz=0.5 --json > " +
+                          out.string() + " 2>" + err.string();
+  REQUIRE(std::system(cmd.c_str()) == 0);
+  const auto j = nlohmann::json::parse(slurp(out));
+  const double s = j["sigma_freq_kHz_at_1s"];
+  REQUIRE(std::abs(s * 1e3 - 1565.5) < 0.05);
+  // Time for σ_f = 0.5 kHz: (σ_1s / 0.5 kHz)² seconds.
+  REQUIRE(std::abs(j["targets"][0]["duration_s"].get<double>() / std::pow(s / 0.5, 2) - 1) < 1e-12);
+  // Missing rates and an unknown target are input errors.
+  REQUIRE(run("plan --bin-ns 10 --range-ns 10000 --contrast 0.05 --beat-MHz 1 --target beat-freq-kHz=0.5", err) == 2);
+  REQUIRE(run("plan --singles-per-s 1e5 --bin-ns 10 --range-ns 10000 --contrast 0.05 --beat-MHz 1 --target speed=3", err) == 2);
+}

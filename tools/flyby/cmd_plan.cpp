@@ -20,10 +20,17 @@ struct PlanArgs {
   std::optional<double> singles_per_s;
   std::vector<std::string> targets;
   bool json = false;
+  bool start_rate_given = false, stop_rate_given = false;
 };
 
 void run_plan(PlanArgs a) {
-  if (a.singles_per_s) a.m.start_rate_per_s = a.m.stop_rate_per_s = *a.singles_per_s;
+  if (a.singles_per_s) {
+    if (a.start_rate_given || a.stop_rate_given)
+      throw InputError("--singles-per-s sets both rates; do not combine it with --start-rate-per-s/--stop-rate-per-s");
+    a.m.start_rate_per_s = a.m.stop_rate_per_s = *a.singles_per_s;
+  } else if (!a.start_rate_given || !a.stop_rate_given) {
+    throw InputError("give the singles rates: --singles-per-s, or both --start-rate-per-s and --stop-rate-per-s");
+  }
   a.m.decay_us = a.decay_us;
   std::vector<analysis::PlanTarget> targets;
   for (const auto& t : a.targets) targets.push_back(analysis::PlanTarget::parse(t));
@@ -65,8 +72,8 @@ void register_plan(CLI::App& app) {
       "the Poisson-count correlation histogram of a model beat signal (a scenario-config form follows with "
       "the simulator)");
   c->add_option("--singles-per-s", args->singles_per_s, "singles rate of both start and stop channel (1/s)");
-  c->add_option("--start-rate-per-s", args->m.start_rate_per_s, "singles rate of the start channel (1/s)");
-  c->add_option("--stop-rate-per-s", args->m.stop_rate_per_s, "singles rate of the stop channel (1/s)");
+  auto* start_rate = c->add_option("--start-rate-per-s", args->m.start_rate_per_s, "singles rate of the start channel (1/s)");
+  auto* stop_rate = c->add_option("--stop-rate-per-s", args->m.stop_rate_per_s, "singles rate of the stop channel (1/s)");
   c->add_option("--g2-background", args->m.g2_background, "g2 level the beats sit on (default 1)");
   c->add_option("--bin-ns", args->m.bin_width_ns, "histogram bin width (ns)")->required();
   c->add_option("--range-ns", args->m.range_ns, "delays analysed: 0 .. range (ns)")->required();
@@ -77,7 +84,11 @@ void register_plan(CLI::App& app) {
   c->add_option("--target", args->targets, "beat-freq-kHz=<sigma in kHz> or beat-significance=<n sigma>; repeatable")
       ->required();
   c->add_flag("--json", args->json, "print the plan as JSON");
-  c->callback([args] { run_plan(*args); });
+  c->callback([args, start_rate, stop_rate] {
+    args->start_rate_given = start_rate->count() > 0;
+    args->stop_rate_given = stop_rate->count() > 0;
+    run_plan(*args);
+  });
 }
 
 }  // namespace
