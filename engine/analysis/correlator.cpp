@@ -61,6 +61,7 @@ std::optional<std::string> CorrelatorOptions::validate() const {
       return "herald maximum delay must be >= its minimum delay";
   }
   if (threads < 0) return "threads must be >= 0 (0: OpenMP default)";
+  if (min_tags_per_thread < 1) return "min_tags_per_thread must be >= 1";
   return std::nullopt;
 }
 
@@ -181,7 +182,8 @@ void Correlator::process(std::size_t n_ready) {
     const std::size_t x0 = static_cast<std::size_t>(std::lower_bound(xp.begin(), xp.end(), n0) - xp.begin());
     const std::size_t nx = xt.size() - x0;
     if (nx == 0) return;
-    const int nthreads = static_cast<int>(hist.size());
+    const int nthreads = static_cast<int>(
+        std::min<std::size_t>(hist.size(), std::max<std::size_t>(1, nx / opt_.min_tags_per_thread)));
 #pragma omp parallel num_threads(nthreads)
     {
       const int tid = omp_get_thread_num();

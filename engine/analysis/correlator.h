@@ -47,6 +47,9 @@ struct CorrelatorOptions {
   std::vector<TimeWindow> start_windows;
   std::optional<HeraldCondition> herald;  // unset: no heralding condition
   int threads = 0;                        // OpenMP threads inside a chunk; 0: OpenMP default
+  // A thread is given at least this many tags of a chunk (fewer threads for small chunks,
+  // where starting a parallel region costs more than it saves), >= 1.
+  std::size_t min_tags_per_thread = 16384;
 
   // Empty if the options are usable, else one line naming the first problem.
   std::optional<std::string> validate() const;
