@@ -400,3 +400,21 @@ TEST_CASE("impossible requests are one-line input errors naming the allowed valu
   r.species = "Li7";
   CHECK_THROWS_WITH(LevelStructure::from_species(r), Catch::Contains("Rb87, Rb85, Cs133, Na23, K39"));
 }
+
+TEST_CASE("validity notes flag fields where the Zeeman model is approximate", "[levels]") {
+  // 39K 4P3/2 F′ spacings are a few MHz (Tiecke [memory]); at 1.5 G g_J′ μB B ≈ 2.8 MHz.
+  auto k = LevelStructure::from_species(full_request("K39", Line::kD2, 1.5));
+  bool paschen_back = false;
+  for (const auto& n : k.notes()) paschen_back |= n.find("Paschen-Back") != std::string::npos;
+  CHECK(paschen_back);
+  // 87Rb at 0.1 G: quadratic ground shift ~6 Hz, excited spacings ≥ 72 MHz: nothing to flag.
+  CHECK(LevelStructure::from_species(full_request("Rb87", Line::kD2, 0.1)).notes().empty());
+  // 87Rb at 5 G, linear: m=0 quadratic shift ≈ 3417 MHz·x²/2 with x ≈ 2e-3 → ≈ 7 kHz, flagged;
+  // with Breit–Rabi the ground note disappears.
+  auto lin = LevelStructure::from_species(full_request("Rb87", Line::kD2, 5.0));
+  REQUIRE(lin.notes().size() == 1);
+  CHECK(lin.notes()[0].find("Breit-Rabi") != std::string::npos);
+  auto req = full_request("Rb87", Line::kD2, 5.0);
+  req.ground_zeeman = GroundZeeman::kBreitRabi;
+  CHECK(LevelStructure::from_species(req).notes().empty());
+}
