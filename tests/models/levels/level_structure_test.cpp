@@ -409,12 +409,13 @@ TEST_CASE("validity notes flag fields where the Zeeman model is approximate", "[
   CHECK(paschen_back);
   // 87Rb at 0.1 G: quadratic ground shift ~6 Hz, excited spacings ≥ 72 MHz: nothing to flag.
   CHECK(LevelStructure::from_species(full_request("Rb87", Line::kD2, 0.1)).notes().empty());
-  // 87Rb at 5 G, linear: m=0 quadratic shift ≈ 3417 MHz·x²/2 with x ≈ 2e-3 → ≈ 7 kHz, flagged;
-  // with Breit–Rabi the ground note disappears.
-  auto lin = LevelStructure::from_species(full_request("Rb87", Line::kD2, 5.0));
+  // 87Rb at 3 G, linear: the F=2, m=0 quadratic shift ΔE_hfs·x²/4 with x = (g_J − g_I)μB B/ΔE_hfs
+  // ≈ 1.2e-3 is ≈ 2.6 kHz, flagged; the excited Zeeman energy 5.6 MHz is < 10 % of the 72 MHz
+  // F′=0–1 spacing, not flagged. With Breit–Rabi the ground note disappears.
+  auto lin = LevelStructure::from_species(full_request("Rb87", Line::kD2, 3.0));
   REQUIRE(lin.notes().size() == 1);
   CHECK(lin.notes()[0].find("Breit-Rabi") != std::string::npos);
-  auto req = full_request("Rb87", Line::kD2, 5.0);
+  auto req = full_request("Rb87", Line::kD2, 3.0);
   req.ground_zeeman = GroundZeeman::kBreitRabi;
   CHECK(LevelStructure::from_species(req).notes().empty());
 }
