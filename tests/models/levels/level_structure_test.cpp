@@ -10,6 +10,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <numbers>
 #include <map>
 #include <string>
 #include <vector>
@@ -39,7 +40,7 @@ LevelRequest full_request(const std::string& species, Line line, double field_G 
   return r;
 }
 
-double shift_MHz(const flyby::levels::Sublevel& s) { return s.energy_rad_per_us / (2 * M_PI); }
+double shift_MHz(const flyby::levels::Sublevel& s) { return s.energy_rad_per_us / (2 * std::numbers::pi); }
 
 // Energy (MHz) of sublevel (excited, 2F, 2m).
 double energy_of(const LevelStructure& ls, bool excited, int two_F, int two_m) {
@@ -349,7 +350,7 @@ TEST_CASE("custom atom: closed transition with the given g_F, Γ and λ", "[leve
   a.field_G = 2.0;
   const auto ls = LevelStructure::from_custom(a);
   REQUIRE(ls.dimension() == 6);
-  CHECK(std::abs(ls.gamma_rad_per_us() - 2 * M_PI * 6.0) <= 1e-12);
+  CHECK(std::abs(ls.gamma_rad_per_us() - 2 * std::numbers::pi * 6.0) <= 1e-12);
   // Zeeman shift μB g_F m B (μB/h from CODATA 2018, engine/common/constants.h).
   CHECK(std::abs(shift_MHz(ls.sublevels()[5]) - flyby::constants::muB_over_h_MHz_per_G * (4.0 / 3) * 1.5 * 2.0) <= 1e-12);
   Eigen::MatrixXd sum = Eigen::MatrixXd::Zero(6, 6);
