@@ -207,11 +207,14 @@ void print_table(const LevelStructure& ls, std::ostream& os) {
     os << (h.excited ? "excited F'=" : "ground  F=") << half(h.two_F) << "   g_F = " << std::showpos << std::setprecision(7)
        << h.gF << "   hyperfine shift " << std::setprecision(4) << h.hyperfine_shift_MHz << " MHz" << std::noshowpos
        << "\n";
-    os << "      m      shift/MHz     Zeeman/MHz\n";
-    for (const auto& s : ls.sublevels()) {
+    os << "      m      shift/MHz     Zeeman/MHz" << (h.excited ? "   loss" : "") << "\n";
+    for (int i = 0; i < ls.dimension(); ++i) {
+      const auto& s = ls.sublevels()[i];
       if (s.excited != h.excited || s.two_F != h.two_F) continue;
       os << std::setw(7) << half(s.two_m) << std::showpos << std::setw(15) << std::setprecision(6) << shift_MHz(s)
-         << std::setw(15) << std::setprecision(6) << shift_MHz(s) - h.hyperfine_shift_MHz << std::noshowpos << "\n";
+         << std::setw(15) << std::setprecision(6) << shift_MHz(s) - h.hyperfine_shift_MHz << std::noshowpos;
+      if (h.excited) os << std::setw(10) << std::setprecision(6) << ls.loss_fraction(i);
+      os << "\n";
     }
     os << "\n";
   }
@@ -222,12 +225,14 @@ void print_table(const LevelStructure& ls, std::ostream& os) {
     os << std::setw(6) << half(s.ground_2F) << "  ->" << std::setw(4) << half(s.excited_2F) << std::setw(12)
        << std::setprecision(6) << s.S << "  " << as_fraction(s.S) << "\n";
   }
-  os << "\nbranching ratios: fraction of the decay of each excited F' into each ground F\n";
+  os << "\nbranching ratios (zero field): fraction of the decay of each excited F' into each ground F\n";
   os << "    F'  ->  F    fraction\n";
   int last = -1;
   double loss = 0.0;
   auto flush_loss = [&] {
-    if (last >= 0) os << "    F'=" << half(last) << " loss (ground levels not in the model): " << std::setprecision(6) << loss << "\n";
+    if (last >= 0) {
+      os << "    F'=" << half(last) << " loss (ground levels not in the model): " << std::setprecision(6) << loss << "\n";
+    }
   };
   for (const auto& b : ls.branching()) {
     if (b.excited_2F != last) {
