@@ -11,8 +11,8 @@
 #include "engine/records/record_reader.h"
 #include "engine/records/record_writer.h"
 #include "models/detectors/detector_chain.h"
-#include "tests/records/run_cli.h"
-#include "tests/records/scratch_dir.h"
+#include "tests/support/run_cli.h"
+#include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
 using namespace flyby::records;
