@@ -15,10 +15,11 @@ std::uint64_t export_csv(RecordReader& reader, std::ostream& out, const CsvExpor
   const RecordHeader& h = reader.header();
   const char d = options.delimiter;
   if (options.metadata) {
+    // Shortest text that reads back to the same double (std::to_chars round-trip guarantee).
     char res[64];
-    std::snprintf(res, sizeof res, "%.17g", h.resolution_ps);
+    const auto rr = std::to_chars(res, res + sizeof res, h.resolution_ps);
     out << "#@flyby format_version=" << kFormatVersion << "\n";
-    out << "#@flyby resolution_ps=" << res << "\n";
+    out << "#@flyby resolution_ps=" << std::string_view(res, static_cast<std::size_t>(rr.ptr - res)) << "\n";
     out << "#@flyby start_ps=" << h.start_ps << "\n";
     out << "#@flyby duration_ps=" << h.duration_ps << "\n";
     for (const Channel& c : h.channels) {

@@ -1,6 +1,7 @@
 // Record inspection (see record_info.h).
 #include "engine/records/record_info.h"
 
+#include <charconv>
 #include <cmath>
 #include <cstdio>
 #include <sstream>
@@ -80,8 +81,8 @@ std::string RecordInfo::text_report() const {
   std::snprintf(buf, sizeof buf, "%.6g s (window %lld ps + %lld ps)", header.duration_s(),
                 static_cast<long long>(header.start_ps), static_cast<long long>(header.duration_ps));
   os << "duration:    " << buf << "\n";
-  std::snprintf(buf, sizeof buf, "%.17g ps", header.resolution_ps);
-  os << "resolution:  " << buf << "\n";
+  const auto rr = std::to_chars(buf, buf + sizeof buf, header.resolution_ps);
+  os << "resolution:  " << std::string_view(buf, static_cast<std::size_t>(rr.ptr - buf)) << " ps\n";
   os << "tags:        " << tag_count;
   if (first_time_ps) os << " (first " << *first_time_ps << " ps, last " << *last_time_ps << " ps)";
   os << "\n";

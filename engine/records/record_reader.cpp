@@ -163,6 +163,7 @@ void RecordReader::Impl::open() {
 }
 
 void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagBlock& out) {
+  silence_hdf5_errors();  // per thread: the reader may be used on another thread than it was made on
   out.clear();
   if (first >= n || count == 0) return;
   count = static_cast<std::size_t>(std::min<std::uint64_t>(count, n - first));
@@ -184,7 +185,8 @@ void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagB
       fail("tags are not sorted in time: tag " + std::to_string(tag) + " (" + std::to_string(t) +
            " ps) is earlier than tag " + std::to_string(tag - 1) + " (" + std::to_string(out.time_ps[i - 1]) + " ps)");
     }
-    if (t < lo || t - lo >= span) {
+    // t >= lo makes the unsigned difference exact even where t - lo would overflow int64.
+    if (t < lo || static_cast<std::uint64_t>(t) - static_cast<std::uint64_t>(lo) >= static_cast<std::uint64_t>(span)) {
       fail("tag " + std::to_string(tag) + " at " + std::to_string(t) + " ps lies outside the window [" +
            std::to_string(lo) + ", " + std::to_string(lo + span) + ") ps");
     }

@@ -7,8 +7,9 @@
 // pass also checks the stored per-channel counts. Any problem throws flyby::InputError with one
 // line "<file>: <problem>". The HDF5 library's own error printing is switched off.
 //
-// Not thread-safe: one reader per thread (HDF5 serializes I/O anyway); parallelize over the
-// blocks after reading them.
+// A reader is not thread-safe: use one reader per thread. Debian's HDF5 is built thread-safe
+// (one global lock), so several readers may run at once, but their I/O is serialized:
+// parallelize the work on blocks after reading them.
 #pragma once
 
 #include <cstdint>

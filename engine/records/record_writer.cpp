@@ -68,6 +68,7 @@ struct RecordWriter::Impl {
   }
 
   void flush() {
+    silence_hdf5_errors();
     if (buffer.empty()) return;
     const std::uint64_t n = buffer.size();
     write_slab(time_dset.get(), H5T_NATIVE_INT64, buffer.time_ps.data(), n, "/tags/time_ps");
@@ -158,19 +159,27 @@ std::uint64_t RecordWriter::tag_count() const { return impl_->total; }
 void RecordWriter::commit() {
   Impl& m = *impl_;
   if (m.done) return;
+  silence_hdf5_errors();
   m.flush();
   RecordHeader& h = m.header;
   if (m.fit_window) {
     h.start_ps = m.first_time.value_or(0);
-    h.duration_ps = m.total == 0 ? 0 : *m.last_time - *m.first_time + 1;
-    if (m.total > 0 && h.duration_ps <= 0) m.fail_input("tag times span more than the int64 range");
+    h.duration_ps = 0;
+    if (m.total > 0) {
+      std::int64_t span = 0;
+      if (__builtin_sub_overflow(*m.last_time, *m.first_time, &span) || span == std::numeric_limits<std::int64_t>::max()) {
+        m.fail_input("tag times span more than the int64 range of ps");
+      }
+      h.duration_ps = span + 1;
+    }
   }
   if (m.total > 0) {
     if (*m.first_time < h.start_ps) {
       m.fail_input("first tag at " + std::to_string(*m.first_time) + " ps is before the window start " +
                    std::to_string(h.start_ps) + " ps");
     }
-    if (*m.last_time - h.start_ps >= h.duration_ps) {
+    if (static_cast<std::uint64_t>(*m.last_time) - static_cast<std::uint64_t>(h.start_ps) >=
+        static_cast<std::uint64_t>(h.duration_ps)) {
       m.fail_input("last tag at " + std::to_string(*m.last_time) + " ps is not before the window end " +
                    std::to_string(h.start_ps + h.duration_ps) + " ps");
     }

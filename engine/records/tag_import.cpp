@@ -93,6 +93,12 @@ class TagSink {
       mode_ = Mode::kMeta;
       header_.channels = meta_.channels;
       for (const auto& c : meta_.channels) map_.push_back({c.name, c.id});
+      // An export with --channel-ids writes ids instead of names: accept those too, unless a
+      // channel's name is itself that number.
+      for (const auto& c : meta_.channels) {
+        const std::string id = std::to_string(c.id);
+        if (std::none_of(map_.begin(), map_.end(), [&](const Entry& e) { return e.token == id; })) map_.push_back({id, c.id});
+      }
     } else {
       mode_ = Mode::kAuto;
     }

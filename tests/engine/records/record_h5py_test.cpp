@@ -2,12 +2,13 @@
 // docs/record-format.md (tests/reference/record_h5py_check.py): proves the documented layout.
 #include <catch2/catch.hpp>
 #include <cstdio>
+#include <cstring>
 #include <nlohmann/json.hpp>
 #include <string>
 
 #include "engine/common/random.h"
 #include "engine/records/record_writer.h"
-#include "tests/records/scratch_dir.h"
+#include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
 using namespace flyby::records;
@@ -75,4 +76,24 @@ TEST_CASE("h5py reads a flyby record by the documented layout", "[records][refer
     CHECK(j["channels"][k]["count"] == counts[k]);
   }
   CHECK(j["channels"][2]["role"] == "marker");
+
+  // The example reader printed in docs/record-format.md runs as documented on this file and
+  // prints every channel with its rate.
+  const std::string example = std::string(FLYBY_TEST_PYTHON) +
+                               " -c 'import re, sys; doc = open(sys.argv[1]).read(); "
+                               "code = re.search(r\"```python\\n(.*?)```\", doc, re.S).group(1); "
+                               "exec(code.replace(\"path = \\\"run.h5\\\"\", \"path = sys.argv[2]\"))' " +
+                               FLYBY_SOURCE_DIR + "/docs/record-format.md " + (dir / "run.h5").string();
+  const std::string printed = run_capture(example, status);
+  INFO(printed);
+  REQUIRE(status == 0);
+  for (int k = 0; k < 3; ++k) {
+    const double rate = static_cast<double>(counts[k]) / 3.0;  // 3 s window
+    char line[128];
+    std::snprintf(line, sizeof line, "%s %s ", d.header.channels[k].name.c_str(),
+                  std::string(to_string(d.header.channels[k].role)).c_str());
+    const auto pos = printed.find(line);
+    REQUIRE(pos != std::string::npos);
+    CHECK(std::stod(printed.substr(pos + std::strlen(line))) == Approx(rate).epsilon(1e-12));
+  }
 }

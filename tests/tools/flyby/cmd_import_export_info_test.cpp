@@ -11,8 +11,8 @@
 #include "engine/records/record_reader.h"
 #include "engine/records/record_writer.h"
 #include "models/detectors/detector_chain.h"
-#include "tests/records/run_cli.h"
-#include "tests/records/scratch_dir.h"
+#include "tests/support/run_cli.h"
+#include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
 using namespace flyby::records;
@@ -130,6 +130,14 @@ TEST_CASE("export -> import is bit-exact and indistinguishable to flyby info", "
   const RecordData c = read_record(dir / "again.h5");
   CHECK(c.tags.time_ps == a.tags.time_ps);
   CHECK(c.tags.channel == a.tags.channel);
+
+  // An export with numeric channel ids reads back the same way.
+  REQUIRE(run_flyby("export sim.h5 --csv --channel-ids --delimiter tab -o ids.tsv", d).status == 0);
+  REQUIRE(run_flyby("import ids.tsv -o ids.h5 --delimiter tab", d).status == 0);
+  const RecordData e = read_record(dir / "ids.h5");
+  CHECK(e.tags.time_ps == a.tags.time_ps);
+  CHECK(e.tags.channel == a.tags.channel);
+  CHECK(e.header.channels[3].name == "feedback");
 
   // Export to standard output gives the same text.
   auto so = run_flyby("export sim.h5 --csv", d);
