@@ -223,7 +223,12 @@ class Reader {
   }
   // Key given where it does not apply (e.g. rabi_MHz on a resonator drive).
   void forbid(const toml::table& t, std::string_view key, const std::string& why) const {
-    if (const toml::node* n = t.get(key)) fail(*n, "'" + std::string(key) + "' " + why);
+    if (const toml::node* n = t.get(key)) {
+      // Built with append: GCC 12 warns falsely (-Wrestrict, bug 105329) on "'" + std::string.
+      std::string msg(1, '\'');
+      msg.append(key).append("' ").append(why);
+      fail(*n, msg);
+    }
   }
 
   // 2F from a number that must be an integer or half-integer ≥ 0.
