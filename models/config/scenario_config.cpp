@@ -590,7 +590,7 @@ ScenarioConfig parse_config(std::string_view text, std::string_view source_name)
   sc.where["source"] = r.loc(table("source")->source());
   read_source(r, *table("source"), sc);
   if (const toml::array* a = array("population")) {
-    sc.where["population"] = r.loc(a->source());
+    if (!a->empty()) sc.where["population"] = r.loc((*a)[0].source());
     for (const auto& e : *a) read_population(r, *e.as_table(), sc);
   }
   if (const toml::array* a = array("feedback")) {

@@ -5,6 +5,7 @@
 //   flyby config --markdown        the key reference as markdown (configs/README.md is made from it)
 #include <iostream>
 #include <memory>
+#include <optional>
 #include <string>
 
 #include "engine/common/errors.h"
@@ -56,7 +57,18 @@ void run_config(const ConfigArgs& a) {
     }
     if (!k) {
       std::string msg = "--explain: unknown key '" + a.explain + "'";
-      if (auto near = nearest_key(a.explain)) msg += "; did you mean '" + *near + "'?";
+      // Nearest over every key, comparing the part after the section.
+      std::optional<std::string> near;
+      std::size_t best = std::string::npos;
+      const std::string name = a.explain.substr(a.explain.rfind('.') == std::string::npos ? 0 : a.explain.rfind('.') + 1);
+      for (const auto& key : config_keys()) {
+        const std::size_t d = edit_distance(name, key.path.substr(key.path.rfind('.') + 1));
+        if (d < best) {
+          best = d;
+          near = key.path;
+        }
+      }
+      if (near && best <= name.size() / 2 + 1) msg += "; did you mean '" + *near + "'?";
       msg += " (see flyby config --list)";
       throw flyby::InputError(msg);
     }
