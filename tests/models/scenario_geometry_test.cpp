@@ -177,3 +177,17 @@ TEST_CASE("a σ+ analyzer is blind to a pure σ− transition through both biref
     CHECK(std::abs(seen(model, down, +1, 0)) > 0.5);
   }
 }
+
+TEST_CASE("an unpolarized free-space detector sees the unpolarized dipole pattern", "[scenario][geometry]") {
+  // Two orthogonal transverse polarizations under one channel: the diagonal of Σ C†C is
+  // η Γ ΔΩ (3/8π)(1 − |n·e_q|²) for each q (sin²θ for π, (1+cos²θ)/2 for σ).
+  const double gamma = 2 * kPi * 5.0, dOmega = 0.2, eta = 0.7, th = 1.1;
+  const Vec3 n(std::sin(th), 0, std::cos(th));
+  const TransverseBasis tb = transverse_basis(n);
+  std::vector<LinearCollapse> ch = {free_space_channel("u", gamma, dOmega, eta, tb.e1.cast<Complex>()),
+                                    free_space_channel("u", gamma, dOmega, eta, tb.e2.cast<Complex>())};
+  const Eigen::MatrixXcd m = decay_matrix(ch, 3);
+  for (int q = -1; q <= 1; ++q) {
+    CHECK(std::abs(m(q + 1, q + 1).real() - eta * gamma * dOmega * dipole_pattern_unpolarized(q, n)) < 1e-12);
+  }
+}

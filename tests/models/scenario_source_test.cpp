@@ -240,3 +240,35 @@ TEST_CASE("initial populations: validation and sampling frequencies", "[scenario
   CHECK_THROWS_WITH(resolve_populations(bad, {2, 4}), Catch::Contains("not an included ground level"));
   CHECK(resolve_populations({}, {2, 4}).size() == 8);
 }
+
+TEST_CASE("Gaussian and monochromatic speeds; tilt scales the mean atom number by 1/cos θ", "[scenario][source]") {
+  SpeedSpec g;
+  g.kind = SpeedKind::kGaussian;
+  g.speed_m_per_s = 15;
+  g.spread_m_per_s = 2;
+  auto rng = flyby::make_stream(flyby::test::seed("gaussian speeds"), flyby::StreamPurpose::kTest, 3);
+  Stats s;
+  for (int i = 0; i < 100000; ++i) s.add(sample_speed(g, rng));
+  CHECK(std::abs(s.mean - 15) < 5 * s.sem());
+  // Sample variance of a normal: s.d.(s²) = σ²√(2/(n−1)).
+  CHECK(std::abs(s.var() - 4) < 5 * 4 * std::sqrt(2.0 / (s.n - 1)));
+  CHECK(std::abs(mean_speed_m_per_s(g) - 15) < 1e-9);
+  g.spread_m_per_s = 5;  // more than a quarter of the mean
+  CHECK_THROWS_AS(validate(g), flyby::InputError);
+
+  BeamSpec b;
+  b.speed.kind = SpeedKind::kMonochromatic;
+  b.speed.speed_m_per_s = 100;
+  b.slit_width_um = 500;
+  b.flux_per_s = 1e6;
+  // N̄ = R · π w0²/W · 1/v for an untilted beam (slit ⊃ the w0 circle).
+  const double n0 = mean_atoms_in_mode(b, 1e6, 40);
+  CHECK(std::abs(n0 - 1e6 * kPi * 1600 / 500 / 100 * 1e-6) < 1e-12);
+  b.tilt_deg = 30;
+  CHECK(std::abs(mean_atoms_in_mode(b, 1e6, 40) * std::cos(kPi / 6) - n0) < 1e-12);
+  // The tilted axes: d in the x–z plane, u1 = ŷ, u2 ⊥ both.
+  const BeamAxes a = beam_axes(b);
+  CHECK((a.d - Vec3(std::cos(kPi / 6), 0, std::sin(kPi / 6))).norm() < 1e-12);
+  CHECK((a.u1 - Vec3::UnitY()).norm() < 1e-12);
+  CHECK(std::abs(a.u2.dot(a.d)) < 1e-12);
+}
