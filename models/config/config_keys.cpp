@@ -158,12 +158,21 @@ std::vector<KeySpec> build_keys() {
   k.push_back(num("channel[].efficiency_fraction", "fraction", "1", O,
                   "Detection efficiency of the channel (optics after the analyzer and detector quantum efficiency); "
                   "the rest goes to the undetected channel.", 0.0, false, 1.0));
-  k.push_back(num("channel[].dead_time_ns", "ns", "0", O, "Detector dead time (non-paralyzable).", 0.0));
-  k.push_back(num("channel[].jitter_fwhm_ps", "ps", "0", O, "Timing jitter, FWHM.", 0.0));
-  k.push_back(num("channel[].dark_rate_per_s", "1/s", "0", O, "Dark-count rate.", 0.0));
-  k.push_back(num("channel[].afterpulse_fraction", "probability", "0", O, "Afterpulse probability per detection.", 0.0,
-                  false, 1.0));
-  k.push_back(num("channel[].delay_ns", "ns", "0", O, "Cable/electronic delay added to every tag of the channel."));
+  // Detector-chain keys mirror detectors::DetectorChannelOptions (models/detectors) and its ranges.
+  k.push_back(num("channel[].dead_time_ns", "ns", "0", O, "Detector dead time after a click.", 0.0, false, 1e9));
+  k.push_back(str("channel[].dead_time_model", "non-paralyzable", O,
+                  "non-paralyzable: arrivals during the dead time are lost; paralyzable: every arrival restarts it.",
+                  {"non-paralyzable", "paralyzable"}));
+  k.push_back(num("channel[].jitter_fwhm_ps", "ps", "0", O, "Gaussian timing jitter, FWHM.", 0.0, false, 1e6));
+  k.push_back(num("channel[].dark_rate_per_s", "1/s", "0", O, "Dark-count rate (Poisson).", 0.0, false, 1e8));
+  k.push_back(num("channel[].afterpulse_fraction", "probability", "0", O,
+                  "Probability that a click triggers one afterpulse.", 0.0, false, 0.5));
+  k.push_back(num("channel[].afterpulse_delay_ns", "ns", "0", O,
+                  "Fixed delay of an afterpulse after its click (plus an exponential time).", 0.0, false, 1e9));
+  k.push_back(num("channel[].afterpulse_time_constant_ns", "ns", "0", O,
+                  "Mean of the exponential part of the afterpulse delay.", 0.0, false, 1e9));
+  k.push_back(num("channel[].cable_delay_ns", "ns", "0", O,
+                  "Signal delay from detector to tagger; negative aligns the channel earlier.", -1e6, false, 1e6));
   // ---- [source]
   k.push_back(str("source.kind", "", R, "beam: atoms crossing the mode; stationary: atoms at fixed positions.",
                   {"beam", "stationary"}));
@@ -225,7 +234,9 @@ std::vector<KeySpec> build_keys() {
   k.push_back(num("run.arrival_block_us", "µs", "100", O,
                   "Lab-time block that owns one arrival random stream (changing it changes the atoms drawn).", 0.0,
                   true));
-  k.push_back(num("run.tagger_resolution_ps", "ps", "1", O, "Time-tag resolution of the record.", 0.0, true));
+  k.push_back(num("run.tagger_resolution_ps", "ps", "1", O, "Time-tag bin width of the record.", 0.0, true, 1e6));
+  k.push_back(num("run.tagger_max_rate_per_s", "1/s", "unlimited", O,
+                  "Largest sustained tag rate of the tagger over all channels.", 1.0, false, 1e10));
   return k;
 }
 

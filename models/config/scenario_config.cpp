@@ -1,6 +1,8 @@
 // TOML → ScenarioConfig, and the cross-checks of check_scenario (see scenario_config.h).
 #include "models/config/scenario_config.h"
 
+#include <algorithm>
+#include <cctype>
 #include <cmath>
 #include <fstream>
 #include <numbers>
@@ -389,6 +391,13 @@ void read_drive(const Reader& r, const toml::table& t, ScenarioConfig& sc) {
 void read_channel(const Reader& r, const toml::table& t, ScenarioConfig& sc, std::vector<resonator::OutputPort>& ports) {
   const std::string name = r.need_str(t, "name", "[[channel]]");
   const std::string label = "[[channel]] '" + name + "'";
+  // Record channel names (records/record_format.h): 1–64 characters of [A-Za-z0-9_.+-].
+  const bool name_ok = !name.empty() && name.size() <= 64 &&
+                       std::all_of(name.begin(), name.end(), [](char ch) {
+                         return std::isalnum(static_cast<unsigned char>(ch)) || ch == '_' || ch == '.' || ch == '+' ||
+                                ch == '-';
+                       });
+  if (!name_ok) r.fail(*t.get("name"), "channel name '" + name + "' must be 1-64 characters of A-Z a-z 0-9 _ . + -");
   const std::string src = r.need_str(t, "source", label);
   sc.where["channel:" + name] = r.loc(t.source());
   const double eff = Reader::num(t, "efficiency_fraction").value_or(1.0);
@@ -426,10 +435,13 @@ void read_channel(const Reader& r, const toml::table& t, ScenarioConfig& sc, std
   DetectorParams dp;
   dp.channel = name;
   dp.dead_time_ns = Reader::num(t, "dead_time_ns").value_or(0.0);
+  dp.paralyzable = Reader::str(t, "dead_time_model").value_or("non-paralyzable") == "paralyzable";
   dp.jitter_fwhm_ps = Reader::num(t, "jitter_fwhm_ps").value_or(0.0);
   dp.dark_rate_per_s = Reader::num(t, "dark_rate_per_s").value_or(0.0);
   dp.afterpulse_probability = Reader::num(t, "afterpulse_fraction").value_or(0.0);
-  dp.delay_ns = Reader::num(t, "delay_ns").value_or(0.0);
+  dp.afterpulse_delay_ns = Reader::num(t, "afterpulse_delay_ns").value_or(0.0);
+  dp.afterpulse_time_constant_ns = Reader::num(t, "afterpulse_time_constant_ns").value_or(0.0);
+  dp.cable_delay_ns = Reader::num(t, "cable_delay_ns").value_or(0.0);
   for (const auto& other : sc.detectors) {
     if (other.channel == name) r.fail(*t.get("name"), "channel name '" + name + "' is used twice");
   }
@@ -519,6 +531,7 @@ void read_run(const Reader& r, const toml::table& t, ScenarioConfig& sc) {
   run.relative_tolerance = Reader::num(t, "relative_tolerance_fraction").value_or(1e-6);
   run.arrival_block_us = Reader::num(t, "arrival_block_us").value_or(100.0);
   run.tagger_resolution_ps = Reader::num(t, "tagger_resolution_ps").value_or(1.0);
+  run.tagger_max_rate_per_s = Reader::num(t, "tagger_max_rate_per_s");
 }
 
 }  // namespace

@@ -48,15 +48,20 @@ struct FreeSpaceDetector {
   double efficiency = 1.0;
 };
 
-// Detector-chain parameters of one channel, passed to the detector model (models/detectors on the
-// records branch). Efficiency is not here: it is part of the channel's collapse operator.
+// Detector-chain parameters of one channel, field for field those of
+// detectors::DetectorChannelOptions (models/detectors, records branch), which the engine's
+// assembly fills from here. Efficiency is not here: it is part of the channel's collapse
+// operator, so the chain's own efficiency stays 1.
 struct DetectorParams {
   std::string channel;
   double dead_time_ns = 0.0;
+  bool paralyzable = false;                    // dead-time model
   double jitter_fwhm_ps = 0.0;
   double dark_rate_per_s = 0.0;
   double afterpulse_probability = 0.0;
-  double delay_ns = 0.0;
+  double afterpulse_delay_ns = 0.0;
+  double afterpulse_time_constant_ns = 0.0;
+  double cable_delay_ns = 0.0;
 };
 
 enum class SourceKind { kBeam, kStationary };
@@ -76,6 +81,7 @@ struct RunConfig {
   double relative_tolerance = 1e-6;
   double arrival_block_us = 100.0;
   double tagger_resolution_ps = 1.0;
+  std::optional<double> tagger_max_rate_per_s;
 };
 
 struct ScenarioConfig {
