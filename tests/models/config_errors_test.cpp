@@ -194,6 +194,17 @@ TEST_CASE("cross-references: feedback channel and drive, resonator drive without
   CHECK_THAT(kind, Catch::Contains("only for kind = \"resonator\""));
 }
 
+TEST_CASE("channel names follow the record format; names are unique", "[config]") {
+  const std::string e = error_of(replace_line(kBase, 19, "name = \"H V\""));
+  CHECK_THAT(e, Catch::Contains("test.toml:19"));
+  CHECK_THAT(e, Catch::Contains("must be 1-64 characters"));
+  const std::string d = error_of(replace_line(kBase, 23, "name = \"H\""));
+  CHECK_THAT(d, Catch::Contains("test.toml:23"));
+  CHECK_THAT(d, Catch::Contains("used twice"));
+  const std::string a = error_of(replace_line(kBase, 21, "polarization_angle_deg = 0\nafterpulse_fraction = 0.7"));
+  CHECK_THAT(a, Catch::Contains("must be ≤ 0.5"));
+}
+
 TEST_CASE("every numeric key carries a unit suffix; every key is explained", "[config]") {
   for (const auto& k : config_keys()) {
     INFO(k.path);
