@@ -41,6 +41,18 @@ TEST_CASE("the example scenarios describe what their comments say", "[config][ex
   int detected = 0;
   for (const auto& c : free.free_space_channels) detected += c.detected;
   CHECK(detected == 2);
+  // "plus" (σ+ about +x = B̂) couples only to A₋₁ (decays m → m − 1, σ+ light); "minus" (σ+ about
+  // −x, i.e. σ− about B̂) only to A₊₁ — the helicity convention of docs/scenario.md §2.
+  const auto& plus = free.free_space_channels[0];
+  const auto& minus = free.free_space_channels[1];
+  REQUIRE(plus.channel == "plus");
+  REQUIRE(minus.channel == "minus");
+  CHECK(std::abs(plus.coefficients(0)) > 0.1);
+  CHECK(std::abs(plus.coefficients(1)) < 1e-12);
+  CHECK(std::abs(plus.coefficients(2)) < 1e-12);
+  CHECK(std::abs(minus.coefficients(2)) > 0.1);
+  CHECK(std::abs(minus.coefficients(0)) < 1e-12);
+  CHECK(std::abs(minus.coefficients(1)) < 1e-12);
   // Γ Σ A_q†A_q bookkeeping of the free-space channels.
   CHECK(flyby::geometry::completeness_error(free.free_space_channels, 3, free.levels.gamma_rad_per_us()) <
         1e-12 * free.levels.gamma_rad_per_us());
