@@ -46,6 +46,21 @@ std::optional<Interval> interaction_interval(const std::vector<GaussianTube>& el
   return hull;
 }
 
+int max_simultaneous(const Cluster& c) {
+  std::vector<std::pair<double, int>> events;  // (time, +1 entry / −1 exit)
+  for (const auto& m : c.members) {
+    events.emplace_back(m.interval.begin_us, +1);
+    events.emplace_back(m.interval.end_us, -1);
+  }
+  std::sort(events.begin(), events.end());  // at equal times −1 sorts before +1
+  int now = 0, best = 0;
+  for (const auto& e : events) {
+    now += e.second;
+    best = std::max(best, now);
+  }
+  return best;
+}
+
 std::vector<Cluster> make_clusters(const std::vector<std::optional<Interval>>& intervals) {
   std::vector<std::size_t> order;
   for (std::size_t i = 0; i < intervals.size(); ++i) {

@@ -55,6 +55,12 @@ struct Cluster {
   std::vector<ClusterMember> members;  // sorted by entry time, ties by atom index
 };
 
+// Largest number of the cluster's atoms present at the same time (sweep over entries and exits;
+// an exit at the same instant as an entry is processed first). The joint Hilbert-space dimension
+// of the cluster is at most (modes) × (atom dimension)^max_simultaneous — what the engine compares
+// with run.max_cluster_dimension_count.
+int max_simultaneous(const Cluster& cluster);
+
 // Groups atoms with overlapping intervals. intervals[i] is atom i's interval (nullopt: never
 // interacts, skipped). Two intervals that only touch (end == begin) are separate clusters.
 std::vector<Cluster> make_clusters(const std::vector<std::optional<Interval>>& intervals);

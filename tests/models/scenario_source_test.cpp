@@ -200,6 +200,11 @@ TEST_CASE("clusters group transitively overlapping intervals", "[scenario][sourc
   CHECK(c[1].members[0].atom == 1);
   CHECK(c[2].members[0].atom == 5);
   CHECK(make_clusters({}).empty());
+  CHECK(max_simultaneous(c[0]) == 2);  // [0,2] with [1,3], then [1,3] with [2.5,4]
+  CHECK(max_simultaneous(c[1]) == 1);
+  const auto three = make_clusters({Interval{0, 10}, Interval{1, 9}, Interval{2, 3}, Interval{9, 12}});
+  REQUIRE(three.size() == 1);
+  CHECK(max_simultaneous(three[0]) == 3);
 }
 
 TEST_CASE("mean chord of the mode cylinder: slit closed form and Gaussian limit", "[scenario][source]") {
