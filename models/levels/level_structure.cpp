@@ -144,6 +144,42 @@ class LevelBuilder {
     }
   }
 
+  // Field-validity warnings (see notes() in the header).
+  static void add_validity_notes(LevelStructure& ls, const species::SpeciesData& sp, const species::LineData& line,
+                                 const LevelRequest& req) {
+    const double B = req.field_G;
+    if (B == 0.0) return;
+    std::ostringstream os;
+    if (req.ground_zeeman == GroundZeeman::kLinear) {
+      double worst_kHz = 0.0;
+      for (const auto& s : ls.sublevels_) {
+        if (s.excited) continue;
+        const double br = breit_rabi_MHz(s.two_F, s.two_m, sp.two_I, sp.ground_A_MHz, sp.ground_gJ, sp.gI, B);
+        worst_kHz = std::max(worst_kHz, 1e3 * std::abs(br - units::MHz_from_angular(s.energy_rad_per_us)));
+      }
+      if (worst_kHz > 1.0) {
+        os << "at " << B << " G the linear ground Zeeman shifts differ from Breit-Rabi by up to " << worst_kHz
+           << " kHz; ask for Breit-Rabi (--breit-rabi) for exact ground energies";
+        ls.notes_.push_back(os.str());
+        os.str("");
+      }
+    }
+    double min_spacing = 0.0;
+    const auto all_e = LevelStructure::allowed_2F(sp.two_I, line.two_Jp);
+    for (std::size_t k = 1; k < all_e.size(); ++k) {
+      const double d = std::abs(hyperfine_shift_MHz(all_e[k], sp.two_I, line.two_Jp, line.excited_A_MHz, line.excited_B_MHz) -
+                                hyperfine_shift_MHz(all_e[k - 1], sp.two_I, line.two_Jp, line.excited_A_MHz, line.excited_B_MHz));
+      min_spacing = (k == 1) ? d : std::min(min_spacing, d);
+    }
+    const double zeeman = std::abs(line.excited_gJ) * constants::muB_over_h_MHz_per_G * B;
+    if (all_e.size() > 1 && zeeman > 0.1 * min_spacing) {
+      os << "at " << B << " G the excited Zeeman energy g_J' muB B = " << zeeman
+         << " MHz is not small against the smallest F' spacing " << min_spacing
+         << " MHz; the linear excited Zeeman shifts are approximate (onset of the Paschen-Back regime)";
+      ls.notes_.push_back(os.str());
+    }
+  }
+
   static LevelStructure species(const LevelRequest& req) {
     const auto& sp = species::lookup(req.species);
     const auto line_id = req.line == Line::kD1 ? species::LineId::kD1 : species::LineId::kD2;
@@ -194,6 +230,8 @@ class LevelBuilder {
       const int phase = (two_Fp + two_J + 2 + two_I) / 2;
       return ((phase % 2) != 0 ? -1.0 : 1.0) * std::sqrt((two_Fp + 1.0) * (two_Jp + 1.0)) * sixj(two_F, two_Fp);
     });
+
+    add_validity_notes(ls, sp, line, req);
 
     for (int f : ground) {
       for (int fp : excited) {
@@ -293,6 +331,7 @@ int LevelStructure::two_I() const { return two_I_; }
 int LevelStructure::two_J() const { return two_J_; }
 int LevelStructure::two_Jp() const { return two_Jp_; }
 GroundZeeman LevelStructure::ground_zeeman() const { return ground_zeeman_; }
+const std::vector<std::string>& LevelStructure::notes() const { return notes_; }
 
 std::vector<int> LevelStructure::allowed_2F(int two_I, int two_J) {
   std::vector<int> v;

@@ -129,6 +129,11 @@ class LevelStructure {
   int two_Jp() const;                   // 2J′ of the excited level (2F′ for a custom atom)
   GroundZeeman ground_zeeman() const;
 
+  // Warnings about the validity of the model at this field, one line each (empty when none):
+  // linear ground Zeeman shifts that differ from Breit–Rabi by more than 1 kHz, and excited
+  // levels whose Zeeman energy g_J′ μB B exceeds 10 % of the smallest F′ spacing of the line.
+  const std::vector<std::string>& notes() const;
+
   // The 2F values allowed for nuclear spin I and electronic J: |J − I| … J + I.
   static std::vector<int> allowed_2F(int two_I, int two_J);
 
@@ -144,6 +149,7 @@ class LevelStructure {
   std::string label_;
   int two_I_ = 0, two_J_ = 0, two_Jp_ = 0;
   GroundZeeman ground_zeeman_ = GroundZeeman::kLinear;
+  std::vector<std::string> notes_;
   double gamma_rad_per_us_ = 0.0;
   double line_frequency_MHz_ = 0.0;
   double wavelength_nm_ = 0.0;

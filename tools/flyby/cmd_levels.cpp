@@ -88,6 +88,11 @@ std::string as_fraction(double x) {
 }
 
 LevelStructure build(const LevelsArgs& a) {
+  if (!std::isfinite(a.field_G) || a.field_G < 0) {
+    std::ostringstream os;
+    os << "--field-G must be a finite number >= 0 (gauss), got " << a.field_G;
+    throw InputError(os.str());
+  }
   const bool custom = a.custom_ground_F || a.custom_excited_F || a.custom_ground_gF || a.custom_excited_gF ||
                       a.custom_gamma_MHz || a.custom_wavelength_nm;
   if (custom) {
@@ -149,6 +154,7 @@ nlohmann::json to_json(const LevelStructure& ls, const LevelsArgs& a) {
   j["wavelength_nm"] = ls.wavelength_nm();
   j["gamma_MHz"] = ls.gamma_rad_per_us() / (2.0 * M_PI);
   j["reduced_dipole_C_m"] = ls.reduced_dipole_C_m();
+  j["notes"] = ls.notes();
   j["shift_reference"] = "J centroid (hyperfine-free energy) of each level's own J manifold";
   j["ground"] = json::array();
   j["excited"] = json::array();
@@ -193,17 +199,18 @@ void print_table(const LevelStructure& ls, std::ostream& os) {
      << std::setprecision(4) << ls.gamma_rad_per_us() / (2.0 * M_PI) << " MHz, field " << ls.field_G() << " G, "
      << (ls.ground_zeeman() == flyby::levels::GroundZeeman::kBreitRabi ? "Breit-Rabi ground levels" : "linear Zeeman")
      << "\n";
-  os << "  shifts in MHz from the centroid of each J level; Zeeman shift = g_F muB m B\n\n";
+  os << "  shift: energy/h from the centroid of the level's J manifold; Zeeman: shift minus the\n"
+     << "  zero-field hyperfine shift (g_F muB m B when linear)\n\n";
 
   for (const auto& h : ls.hyperfine_levels()) {
     os << (h.excited ? "excited F'=" : "ground  F=") << half(h.two_F) << "   g_F = " << std::showpos << std::setprecision(7)
        << h.gF << "   hyperfine shift " << std::setprecision(4) << h.hyperfine_shift_MHz << " MHz" << std::noshowpos
        << "\n";
-    os << "      m    shift/MHz   Zeeman/MHz\n";
+    os << "      m      shift/MHz     Zeeman/MHz\n";
     for (const auto& s : ls.sublevels()) {
       if (s.excited != h.excited || s.two_F != h.two_F) continue;
-      os << std::setw(7) << half(s.two_m) << std::showpos << std::setw(13) << std::setprecision(4) << shift_MHz(s)
-         << std::setw(13) << std::setprecision(4) << shift_MHz(s) - h.hyperfine_shift_MHz << std::noshowpos << "\n";
+      os << std::setw(7) << half(s.two_m) << std::showpos << std::setw(15) << std::setprecision(6) << shift_MHz(s)
+         << std::setw(15) << std::setprecision(6) << shift_MHz(s) - h.hyperfine_shift_MHz << std::noshowpos << "\n";
     }
     os << "\n";
   }
@@ -233,6 +240,10 @@ void print_table(const LevelStructure& ls, std::ostream& os) {
        << (b.in_model ? "" : "   (not in model: loss)") << "\n";
   }
   flush_loss();
+  if (!ls.notes().empty()) {
+    os << "\nnotes:\n";
+    for (const auto& n : ls.notes()) os << "  * " << n << "\n";
+  }
 }
 
 void register_levels(CLI::App& app) {
