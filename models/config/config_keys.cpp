@@ -100,7 +100,7 @@ std::vector<KeySpec> build_keys() {
                   "Fraction of the field decay 2κ that leaves through the output mirror towards the analyzers.", 0.0,
                   false, 1.0));
   k.push_back(num("resonator.fock_cutoff_count", "photons", "2", O, "Highest photon number kept per mode.", 1.0, false,
-                  std::nullopt, T::kInteger));
+                  50.0, T::kInteger));
   k.push_back(str("resonator.mode_shape", "standing", O,
                   "standing: g ∝ exp(−ρ²/w0²) cos(kz); running: exp(−ρ²/w0²) e^{ikz} (V = π w0² L/2).",
                   {"standing", "running"}));

@@ -169,6 +169,10 @@ CheckedScenario check_scenario(const ScenarioConfig& config) {
       if (s.resonator) w0 = s.resonator->waist_um;
       s.arrival_rate_per_us = source::arrival_rate_per_us(beam, w0);
       if (w0) s.mean_atoms_in_mode = source::mean_atoms_in_mode(beam, *s.arrival_rate_per_us * 1e6, *w0);
+      // Each arrival block holds at most 2^24 atoms (atom ids); keep the expected count far below.
+      if (*s.arrival_rate_per_us * config.run.arrival_block_us > 1e6) {
+        throw InputError("more than 10^6 atoms expected per arrival block; lower run.arrival_block_us");
+      }
       return 0;
     });
     s.config.source.beam.speed.mass_u = beam.speed.mass_u;
