@@ -18,6 +18,7 @@ std::string to_string(KeyType t) {
     case KeyType::kVec3: return "[x, y, z]";
     case KeyType::kVec3List: return "array of [x, y, z]";
     case KeyType::kJones: return "[[re, im], [re, im]]";
+    case KeyType::kMatrix3: return "3×3 matrix [[..], [..], [..]]";
   }
   return "?";
 }
@@ -79,6 +80,10 @@ std::vector<KeySpec> build_keys() {
   // ---- [field]
   k.push_back(vec("field.B_G", "G (lab frame)", "[0, 0, 0]", O,
                   "Magnetic field vector; its direction is the quantization axis."));
+  k.push_back(vec("field.gradient_G_per_mm", "G/mm (lab frame)", "none", O,
+                  "Field gradient ∂B_i/∂x_j (row i, column j) about the origin; must be symmetric and traceless "
+                  "(curl B = div B = 0). Only the component along B is kept (see docs/scenario.md).",
+                  T::kMatrix3));
   k.push_back(vec("field.axis_when_zero_dir", "direction (lab frame)", "[0, 0, 1]", O,
                   "Quantization axis used when B = 0."));
   // ---- [resonator]
@@ -278,7 +283,7 @@ const SectionSpec* find_section(std::string_view name) {
 
 const std::vector<std::string>& unit_suffixes() {
   static const std::vector<std::string> s = {
-      "_mW_per_cm2", "_m_per_s", "_per_s", "_fraction", "_ratio", "_count", "_index", "_jones", "_mrad",
+      "_mW_per_cm2", "_G_per_mm", "_m_per_s", "_per_s", "_fraction", "_ratio", "_count", "_index", "_jones", "_mrad",
       "_MHz", "_deg", "_dir", "_gF", "_ns", "_us", "_ps", "_um", "_mm", "_nm", "_sr", "_id", "_s", "_G",
       "_K", "_F", "_u"};
   return s;

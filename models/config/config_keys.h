@@ -28,6 +28,7 @@ enum class KeyType {
   kVec3,        // [x, y, z]
   kVec3List,    // [[x, y, z], ...]
   kJones,       // [[re, im], [re, im]]
+  kMatrix3,     // [[a, b, c], [d, e, f], [g, h, i]] (rows)
 };
 std::string to_string(KeyType t);
 

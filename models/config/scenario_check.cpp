@@ -38,6 +38,19 @@ std::string where_of(const ScenarioConfig& c, const std::string& key) {
 
 }  // namespace
 
+std::vector<double> reference_frame_energies(const levels::LevelStructure& L, int ref_g, int ref_e) {
+  double shift_g = 0.0, shift_e = 0.0;
+  for (const auto& h : L.hyperfine_levels()) {
+    if (!h.excited && h.two_F == ref_g) shift_g = h.hyperfine_shift_MHz;
+    if (h.excited && h.two_F == ref_e) shift_e = h.hyperfine_shift_MHz;
+  }
+  std::vector<double> e;
+  for (const auto& sl : L.sublevels()) {
+    e.push_back(sl.energy_rad_per_us - units::angular_from_MHz(sl.excited ? shift_e : shift_g));
+  }
+  return e;
+}
+
 CheckedScenario check_scenario(const ScenarioConfig& config) {
   const Vec3 B = config.field.field_G;
   auto frame = at(where_of(config, "field"), "[field]",
@@ -54,6 +67,20 @@ CheckedScenario check_scenario(const ScenarioConfig& config) {
   });
   CheckedScenario s(config, std::move(levels), frame);
   const levels::LevelStructure& L = s.levels;
+  if (config.field.gradient_G_per_mm) {
+    // Zero-field energies for the local-field interpolation of scenario::AtomView.
+    levels::LevelStructure zero = config.atom.custom ? [&] {
+      levels::CustomAtom a = config.atom.custom_atom;
+      a.field_G = 0.0;
+      return levels::LevelStructure::from_custom(a);
+    }() : [&] {
+      levels::LevelRequest req = config.atom.request;
+      req.field_G = 0.0;
+      return levels::LevelStructure::from_species(req);
+    }();
+    s.energies_zero_field_rad_per_us =
+        reference_frame_energies(zero, config.atom.reference_ground_2F, config.atom.reference_excited_2F);
+  }
 
   // Unit-weight dipole (A_q normalization): ⟨J‖er‖J′⟩ √((2J+1)/(2J′+1)).
   s.unit_dipole_C_m = L.reduced_dipole_C_m() * std::sqrt((L.two_J() + 1.0) / (L.two_Jp() + 1.0));

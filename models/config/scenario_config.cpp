@@ -145,6 +145,12 @@ class Reader {
         for (const auto& e : *a) vec3(e);
         break;
       }
+      case KeyType::kMatrix3: {
+        const toml::array* a = n.as_array();
+        if (!a || a->size() != 3) bad_type();
+        for (const auto& e : *a) vec3(e);
+        break;
+      }
       case KeyType::kJones: {
         const toml::array* a = n.as_array();
         if (!a || a->size() != 2) bad_type();
@@ -581,6 +587,21 @@ ScenarioConfig parse_config(std::string_view text, std::string_view source_name)
     sc.where["field"] = r.loc(f->source());
     sc.field.field_G = Reader::vec3(*f, "B_G").value_or(Vec3::Zero());
     sc.field.axis_when_zero = Reader::vec3(*f, "axis_when_zero_dir").value_or(Vec3::UnitZ());
+    if (const toml::node* g = f->get("gradient_G_per_mm")) {
+      Eigen::Matrix3d m;
+      for (int i = 0; i < 3; ++i) m.row(i) = Reader::to_vec3((*g->as_array())[i]).transpose();
+      const double scale = std::max(m.cwiseAbs().maxCoeff(), 1e-300);
+      if ((m - m.transpose()).cwiseAbs().maxCoeff() > 1e-9 * scale) {
+        r.fail(*g, "field.gradient_G_per_mm is not symmetric: a static field in vacuum has curl B = 0");
+      }
+      if (std::abs(m.trace()) > 1e-9 * scale) {
+        r.fail(*g, "field.gradient_G_per_mm has nonzero trace: div B = 0 requires ∂Bx/∂x + ∂By/∂y + ∂Bz/∂z = 0");
+      }
+      if (sc.field.field_G.norm() == 0.0) {
+        r.fail(*g, "field.gradient_G_per_mm needs a nonzero field.B_G (the gradient is taken along B)");
+      }
+      sc.field.gradient_G_per_mm = m;
+    }
   }
   if (const toml::table* t = table("resonator")) {
     sc.where["resonator"] = r.loc(t->source());

@@ -38,6 +38,9 @@ struct AtomConfig {
 struct FieldConfig {
   Vec3 field_G = Vec3::Zero();                 // lab frame, gauss
   Vec3 axis_when_zero = Vec3::UnitZ();         // quantization axis when B = 0
+  // ∂B_i/∂x_j in G/mm (symmetric, traceless); only its component along B is used: the field
+  // magnitude seen at r is B∥(r) = |B| + B̂·(G r), the axis stays along B (valid while |G r| ≪ |B|).
+  std::optional<Eigen::Matrix3d> gradient_G_per_mm;
 };
 
 struct FreeSpaceDetector {
@@ -125,6 +128,9 @@ struct CheckedScenario {
   std::vector<double> side_drive_rabi_rad_per_us;     // peak Ω of each side drive
   std::vector<double> resonator_drive_amplitude_rad_per_us;
   std::vector<double> ground_populations;             // per ground sublevel
+  // Sublevel energies in the reference frame at B = 0 and at |B| (scenario::AtomView interpolates
+  // linearly in the local field when there is a gradient).
+  std::vector<double> energies_zero_field_rad_per_us;
   std::optional<double> arrival_rate_per_us;          // beam only
   std::optional<double> mean_atoms_in_mode;           // beam with a resonator
   std::vector<source::GaussianTube> interaction_elements;  // resonator first, then side drives
@@ -134,5 +140,11 @@ struct CheckedScenario {
 
 // Throws flyby::InputError "FILE:LINE: …" naming the object at fault.
 CheckedScenario check_scenario(const ScenarioConfig& config);
+
+// Sublevel energies (rad/µs) in the reference frame: the reference ground level at zero
+// hyperfine shift, the excited manifold shifted down by the reference optical frequency, so the
+// reference transition at B = 0 has zero energy difference (docs/scenario.md §3).
+std::vector<double> reference_frame_energies(const levels::LevelStructure& levels, int reference_ground_2F,
+                                             int reference_excited_2F);
 
 }  // namespace flyby::config

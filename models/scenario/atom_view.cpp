@@ -6,16 +6,8 @@
 namespace flyby::scenario {
 
 std::vector<double> reference_frame_energies_rad_per_us(const config::CheckedScenario& s) {
-  double shift_g = 0.0, shift_e = 0.0;
-  for (const auto& h : s.levels.hyperfine_levels()) {
-    if (!h.excited && h.two_F == s.config.atom.reference_ground_2F) shift_g = h.hyperfine_shift_MHz;
-    if (h.excited && h.two_F == s.config.atom.reference_excited_2F) shift_e = h.hyperfine_shift_MHz;
-  }
-  std::vector<double> e;
-  for (const auto& sl : s.levels.sublevels()) {
-    e.push_back(sl.energy_rad_per_us - units::angular_from_MHz(sl.excited ? shift_e : shift_g));
-  }
-  return e;
+  return config::reference_frame_energies(s.levels, s.config.atom.reference_ground_2F,
+                                          s.config.atom.reference_excited_2F);
 }
 
 AtomView::AtomView(const config::CheckedScenario& s, const source::Arrival& atom) : s_(&s), atom_(atom) {
@@ -31,6 +23,22 @@ AtomView::AtomView(const config::CheckedScenario& s, const source::Arrival& atom
 }
 
 Vec3 AtomView::position_um(double t) const { return atom_.position_um + atom_.velocity_m_per_s * (t - atom_.t_ref_us); }
+
+double AtomView::field_along_axis_G(double t) const {
+  const double b0 = s_->frame.field_magnitude_G();
+  if (!s_->config.field.gradient_G_per_mm) return b0;
+  const Vec3 r_mm = position_um(t) * 1e-3;
+  return b0 + s_->frame.axis_lab().dot(*s_->config.field.gradient_G_per_mm * r_mm);
+}
+
+std::vector<double> AtomView::energies_at_rad_per_us(double t) const {
+  if (!s_->config.field.gradient_G_per_mm) return energies_;
+  const double ratio = field_along_axis_G(t) / s_->frame.field_magnitude_G();
+  std::vector<double> e(energies_.size());
+  const auto& e0 = s_->energies_zero_field_rad_per_us;
+  for (std::size_t i = 0; i < e.size(); ++i) e[i] = e0[i] + (energies_[i] - e0[i]) * ratio;
+  return e;
+}
 
 Complex AtomView::resonator_coupling(double t) const {
   if (!s_->resonator) return 0.0;

@@ -40,8 +40,16 @@ class AtomView {
   const SphericalWeights& drive_weights(int j) const { return drive_weights_[j]; }
   double drive_detuning_rad_per_us(int j) const { return drive_detuning_[j]; }  // Δ_j − k_j·v
 
-  // Sublevel energies in the reference frame (see the file comment), basis order of the levels.
+  // Sublevel energies in the reference frame (see the file comment), basis order of the levels,
+  // at the uniform field |B|.
   const std::vector<double>& energies_rad_per_us() const { return energies_; }
+
+  // With a field gradient: the field along the (fixed) quantization axis at the atom,
+  // B∥(t) = |B| + B̂·(G r(t)), and the energies with every Zeeman shift scaled by B∥/|B|
+  // (exact for linear Zeeman shifts; first order in the field change for Breit–Rabi). The axis
+  // does not follow the local field direction: valid while |G r| ≪ |B| over the atom's path.
+  double field_along_axis_G(double t_us) const;
+  std::vector<double> energies_at_rad_per_us(double t_us) const;
 
  private:
   const config::CheckedScenario* s_;

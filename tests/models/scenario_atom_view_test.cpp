@@ -101,3 +101,46 @@ TEST_CASE("reference-frame energies put the reference transition at zero", "[sce
   // Ground F = 2 lies 3035.7 MHz below F = 3: 3A(S1/2) = 3 × 1011.9108130 MHz (Steck [memory]).
   CHECK(std::abs(units::MHz_from_angular(energy(false, 4, 0)) + 3 * 1011.9108130) < 1e-3);
 }
+
+TEST_CASE("field gradient: local field along B sets the ground Zeeman splitting", "[scenario][atom_view]") {
+  std::string text = kConfig;
+  text.replace(text.find("B_G = [0, 0, 1e-6]"), 18,
+               "B_G = [0, 0, 1.0]\ngradient_G_per_mm = [[-0.5, 0, 0], [0, -0.5, 0], [0, 0, 1.0]]");
+  const auto s = config::check_scenario(config::parse_config(text, "grad.toml"));
+  source::Arrival a;
+  a.position_um = geometry::Vec3(0, 0, 200);  // 0.2 mm along B: B∥ = 1 + 1.0 × 0.2 = 1.2 G
+  scenario::AtomView view(s, a);
+  CHECK(std::abs(view.field_along_axis_G(0.0) - 1.2) < 1e-12);
+  const auto e = view.energies_at_rad_per_us(0.0);
+  const auto& sl = s.levels.sublevels();
+  double ep = 0, em = 0;
+  for (std::size_t i = 0; i < sl.size(); ++i) {
+    if (!sl[i].excited && sl[i].two_F == 6 && sl[i].two_m == 2) ep = e[i];
+    if (!sl[i].excited && sl[i].two_F == 6 && sl[i].two_m == -2) em = e[i];
+  }
+  // Beat between m = ±1 of 85Rb F = 3: 2 g_F μB B/h with g_F = +0.3334772 (REFERENCES.md
+  // [derived]) and μB/h = 1.39962449361 MHz/G (CODATA 2018).
+  const double expected_MHz = 2 * 0.3334772 * 1.39962449361 * 1.2;
+  CHECK(std::abs(units::MHz_from_angular(ep - em) / expected_MHz - 1.0) < 2e-6);
+  // Off the axis in the transverse plane the field along B is unchanged (∂Bz/∂x = 0 here).
+  a.position_um = geometry::Vec3(300, 0, 0);
+  CHECK(std::abs(scenario::AtomView(s, a).field_along_axis_G(0.0) - 1.0) < 1e-12);
+}
+
+TEST_CASE("field gradient must satisfy Maxwell's equations and needs B ≠ 0", "[scenario][atom_view][config]") {
+  auto err = [](const std::string& grad, const std::string& b) {
+    std::string text = kConfig;
+    text.replace(text.find("B_G = [0, 0, 1e-6]"), 18, "B_G = " + b + "\ngradient_G_per_mm = " + grad);
+    try {
+      config::parse_config(text, "grad.toml");
+    } catch (const InputError& e) {
+      return std::string(e.what());
+    }
+    return std::string();
+  };
+  CHECK_THAT(err("[[0, 1, 0], [0, 0, 0], [0, 0, 0]]", "[0, 0, 1]"), Catch::Contains("curl B = 0"));
+  CHECK_THAT(err("[[1, 0, 0], [0, 1, 0], [0, 0, 1]]", "[0, 0, 1]"), Catch::Contains("div B = 0"));
+  CHECK_THAT(err("[[1, 0, 0], [0, 1, 0], [0, 0, -2]]", "[0, 0, 0]"), Catch::Contains("nonzero field.B_G"));
+  CHECK_THAT(err("[[1, 0, 0], [0, 1, 0], [0, 0, -2]]", "[0, 0, 0]"), Catch::Contains("grad.toml:9"));
+  CHECK(err("[[1, 0, 0], [0, 1, 0], [0, 0, -2]]", "[0, 0, 1]").empty());
+}
