@@ -124,22 +124,37 @@ class LevelBuilder {
     ls.loss_fraction_.assign(static_cast<std::size_t>(n), 0.0);
   }
 
-  // Sets ⟨g|A_q|e⟩ = reduced(F, F′) · ⟨F m_g|F′ m_e; 1 q⟩ for every ground/excited sublevel pair.
+  // A ground state as a superposition Σ c_F |F m⟩ of hyperfine states with the same m (pure
+  // |F m⟩ unless Breit–Rabi mixing is on).
+  using Composition = std::vector<std::pair<int, double>>;
+
+  // ⟨g|A_q|e⟩ = Σ_F c_F · reduced(F, F′) · ⟨F m_g|F′ m_e; 1 q⟩ for ground state g = Σ c_F |F m_g⟩.
   template <class ReducedFn>
-  static void fill_dipoles(LevelStructure& ls, ReducedFn reduced) {
+  static double amplitude(const Composition& g, int two_m_g, const Sublevel& e, ReducedFn reduced) {
+    const int two_q = two_m_g - e.two_m;  // m_g = m_e + q
+    if (std::abs(two_q) > 2) return 0.0;
+    double a = 0.0;
+    for (const auto& [two_F, c] : g) {
+      const double r = reduced(two_F, e.two_F);
+      if (r == 0.0 || c == 0.0) continue;
+      a += c * r * angular::clebsch_gordan(e.two_F, e.two_m, 2, two_q, two_F, two_m_g);
+    }
+    return a;
+  }
+
+  // Fills A_q for every ground/excited pair of the basis; `composition(F, m)` gives the ground
+  // state labelled (F, m).
+  template <class ReducedFn, class CompositionFn>
+  static void fill_dipoles(LevelStructure& ls, ReducedFn reduced, CompositionFn composition) {
     const int n = ls.dimension();
-    for (int e = 0; e < n; ++e) {
-      const auto& se = ls.sublevels_[e];
-      if (!se.excited) continue;
-      for (int g = 0; g < n; ++g) {
-        const auto& sg = ls.sublevels_[g];
-        if (sg.excited) continue;
-        const int two_q = sg.two_m - se.two_m;  // m_g = m_e + q
-        if (std::abs(two_q) > 2) continue;
-        const double r = reduced(sg.two_F, se.two_F);
-        if (r == 0.0) continue;
-        const double cg = angular::clebsch_gordan(se.two_F, se.two_m, 2, two_q, sg.two_F, sg.two_m);
-        ls.lowering_[two_q / 2 + 1](g, e) = r * cg;
+    for (int g = 0; g < n; ++g) {
+      const auto& sg = ls.sublevels_[g];
+      if (sg.excited) continue;
+      const Composition comp = composition(sg.two_F, sg.two_m);
+      for (int e = 0; e < n; ++e) {
+        const auto& se = ls.sublevels_[e];
+        if (!se.excited || std::abs(sg.two_m - se.two_m) > 2) continue;
+        ls.lowering_[(sg.two_m - se.two_m) / 2 + 1](g, e) = amplitude(comp, sg.two_m, se, reduced);
       }
     }
   }
@@ -226,10 +241,50 @@ class LevelBuilder {
 
     // 6j reduction: ⟨g|A_q|e⟩ = (−1)^(F′+J+1+I) √((2F′+1)(2J′+1)) {J J′ 1; F′ F I} ⟨F m_g|F′ m_e; 1 q⟩.
     auto sixj = [&](int two_F, int two_Fp) { return angular::wigner_6j(two_J, two_Jp, 2, two_Fp, two_F, two_I); };
-    fill_dipoles(ls, [&](int two_F, int two_Fp) {
+    auto reduced = [&](int two_F, int two_Fp) {
       const int phase = (two_Fp + two_J + 2 + two_I) / 2;
       return ((phase % 2) != 0 ? -1.0 : 1.0) * std::sqrt((two_Fp + 1.0) * (two_Jp + 1.0)) * sixj(two_F, two_Fp);
-    });
+    };
+    // Breit–Rabi eigenstates: within each m the ground Hamiltonian mixes F1 = I + 1/2 and
+    // F2 = I − 1/2. In the basis {|F1 m⟩, |F2 m⟩}: H_kk = ΔE_hf(F_k) + g_F(F_k) μB m B and
+    // H12 = (g_J − g_I) μB B ⟨F1 m|J_z|F2 m⟩ (I_z = F_z − J_z). The state labelled F1 is the
+    // upper eigenvector when A > 0 (no crossing within one m); the sign is fixed so that the
+    // state's own component is positive, continuous with |F m⟩ at B → 0.
+    auto composition = [&](int two_F, int two_m) -> Composition {
+      if (!breit_rabi || B == 0.0 || two_I == 0 || std::abs(two_m) == two_I + 1) return {{two_F, 1.0}};
+      const int f1 = two_I + 1, f2 = two_I - 1;
+      const double muB_B = constants::muB_over_h_MHz_per_G * B, m = two_m / 2.0;
+      const double h11 = hyperfine_shift_MHz(f1, two_I, two_J, sp.ground_A_MHz, 0.0) +
+                         angular::lande_gF(f1, two_J, two_I, sp.ground_gJ, sp.gI) * muB_B * m;
+      const double h22 = hyperfine_shift_MHz(f2, two_I, two_J, sp.ground_A_MHz, 0.0) +
+                         angular::lande_gF(f2, two_J, two_I, sp.ground_gJ, sp.gI) * muB_B * m;
+      double jz = 0.0;
+      for (int two_mJ = -1; two_mJ <= 1; two_mJ += 2) {
+        const int two_mI = two_m - two_mJ;
+        if (std::abs(two_mI) > two_I) continue;
+        jz += (two_mJ / 2.0) * angular::clebsch_gordan(two_J, two_mJ, two_I, two_mI, f1, two_m) *
+              angular::clebsch_gordan(two_J, two_mJ, two_I, two_mI, f2, two_m);
+      }
+      const double h12 = (sp.ground_gJ - sp.gI) * muB_B * jz;
+      const double mean = 0.5 * (h11 + h22), half = std::hypot(0.5 * (h11 - h22), h12);
+      const bool f1_upper = sp.ground_A_MHz > 0;
+      double c1, c2;
+      if (two_F == f1) {
+        const double E = f1_upper ? mean + half : mean - half;
+        c1 = E - h22;
+        c2 = h12;
+      } else {
+        const double E = f1_upper ? mean - half : mean + half;
+        c1 = h12;
+        c2 = E - h11;
+      }
+      const double norm = std::hypot(c1, c2);
+      FLYBY_CHECK(norm > 0.0, "Breit-Rabi eigenvector has zero norm");
+      const double own = (two_F == f1) ? c1 : c2;
+      const double sign = own < 0 ? -1.0 : 1.0;
+      return {{f1, sign * c1 / norm}, {f2, sign * c2 / norm}};
+    };
+    fill_dipoles(ls, reduced, composition);
 
     add_validity_notes(ls, sp, line, req);
 
@@ -239,19 +294,29 @@ class LevelBuilder {
         ls.strengths_.push_back({f, fp, (fp + 1.0) * (two_J + 1.0) * w * w});
       }
     }
-    std::vector<double> loss_by_excited;
+    // Zero-field branching ratios (closed form), and per excited sublevel the loss: the decay
+    // into every ground state outside the model, summed explicitly over those states (with
+    // Breit–Rabi mixing when it is on), so Σ_q A_q†A_q + loss = 1 is a completeness check.
     for (int fp : excited) {
-      double loss = 0.0;
       for (int f : allowed_g) {
         const double w = sixj(f, fp);
         const double b = (f + 1.0) * (two_Jp + 1.0) * w * w;
         const bool in_model = std::find(ground.begin(), ground.end(), f) != ground.end();
         ls.branching_.push_back({fp, f, b, in_model});
-        if (!in_model) loss += b;
       }
-      for (std::size_t i = 0; i < ls.sublevels_.size(); ++i) {
-        if (ls.sublevels_[i].excited && ls.sublevels_[i].two_F == fp) ls.loss_fraction_[i] = loss;
+    }
+    for (std::size_t i = 0; i < ls.sublevels_.size(); ++i) {
+      const auto& se = ls.sublevels_[i];
+      if (!se.excited) continue;
+      double loss = 0.0;
+      for (int f : allowed_g) {
+        if (std::find(ground.begin(), ground.end(), f) != ground.end()) continue;
+        for (int two_m = -f; two_m <= f; two_m += 2) {
+          const double a = amplitude(composition(f, two_m), two_m, se, reduced);
+          loss += a * a;
+        }
       }
+      ls.loss_fraction_[i] = loss;
     }
     return ls;
   }
@@ -294,7 +359,7 @@ class LevelBuilder {
       return l.gF * constants::muB_over_h_MHz_per_G * (two_m / 2.0) * a.field_G;
     });
     const double r = std::sqrt((a.excited_2F + 1.0) / (a.ground_2F + 1.0));
-    fill_dipoles(ls, [&](int, int) { return r; });
+    fill_dipoles(ls, [&](int, int) { return r; }, [](int two_F, int) { return Composition{{two_F, 1.0}}; });
     ls.strengths_.push_back({a.ground_2F, a.excited_2F, 1.0});
     ls.branching_.push_back({a.excited_2F, a.ground_2F, 1.0, true});
     return ls;

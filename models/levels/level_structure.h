@@ -22,11 +22,12 @@
 //      ⟨F m|d_q|F′ m′⟩ = ⟨F‖d‖F′⟩ ⟨F m|F′ m′; 1 q⟩,
 //    so ⟨g|A_q|e⟩ = (−1)^(F′+J+1+I) √((2F′+1)(2J′+1)) {J J′ 1; F′ F I} ⟨F m_g|F′ m_e; 1 q⟩.
 //  * Zeeman shifts: +μB g_F m B (Steck's sign, μ = −μB g m) for every level by default. With
-//    GroundZeeman::kBreitRabi the ground (J = 1/2) energies are the exact Breit–Rabi
-//    eigenvalues, labelled by the (F, m) they connect to at B → 0; the small admixture of the
-//    other ground F into the eigenvectors (amplitude ≤ x/2 with x = (g_J − g_I) μB B / ΔE_hfs,
-//    ≤ 2e-4 at 1 G for 87Rb) is not put into A_q. The excited levels are always linear, valid
-//    while μB B ≪ their hyperfine splittings (a few gauss to tens of gauss for the D lines).
+//    GroundZeeman::kBreitRabi the ground (J = 1/2) states are the exact eigenstates of
+//    A I·J + μB B (g_J J_z + g_I I_z): energies from the Breit–Rabi formula, and A_q and the
+//    loss computed with the eigenvectors, which mix F = I ± 1/2 of the same m. Each is
+//    labelled by the (F, m) it connects to at B → 0, with a positive |F m⟩ component. The
+//    excited levels are always linear, valid while μB B ≪ their hyperfine splittings (see
+//    notes()).
 #pragma once
 
 #include <Eigen/Dense>
@@ -100,7 +101,8 @@ class LevelStructure {
   double field_G() const;
 
   // Fraction of excited sublevel i's decay (index into sublevels()) that goes to ground levels
-  // not in the model; 0 for ground sublevels.
+  // not in the model; 0 for ground sublevels. Equals the zero-field branching into the
+  // excluded levels, except with Breit–Rabi mixing (then it depends slightly on m′ and B).
   double loss_fraction(int i) const;
 
   // Relative strength S_FF′ = (2F′+1)(2J+1){J J′ 1; F′ F I}² of each included pair (ground
@@ -114,7 +116,8 @@ class LevelStructure {
   // Branching ratio of each included excited F′ into each ground F of the line (in the model or
   // not): the fraction of the population decay of any sublevel of F′ that ends in level F,
   // summed over polarizations and m, b(F′→F) = (2F+1)(2J′+1){J J′ 1; F′ F I}² (independent of
-  // m′; Σ_F b = 1). Entries with in_model = false are the loss channels. Custom atom: one entry 1.
+  // m′; Σ_F b = 1; zero-field values). Entries with in_model = false are the loss channels.
+  // Custom atom: one entry 1.
   struct Branching {
     int excited_2F, ground_2F;
     double fraction;

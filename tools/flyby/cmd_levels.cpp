@@ -3,6 +3,7 @@
 // branching ratios of each excited F′ (including decay to ground levels outside the model,
 // shown as loss) — as a readable table or as JSON (--json).
 #include <cmath>
+#include <numbers>
 #include <cstdio>
 #include <iomanip>
 #include <iostream>
@@ -136,7 +137,7 @@ LevelStructure build(const LevelsArgs& a) {
   return LevelStructure::from_species(req);
 }
 
-double shift_MHz(const flyby::levels::Sublevel& s) { return s.energy_rad_per_us / (2.0 * M_PI); }
+double shift_MHz(const flyby::levels::Sublevel& s) { return s.energy_rad_per_us / (2.0 * std::numbers::pi); }
 
 nlohmann::json to_json(const LevelStructure& ls, const LevelsArgs& a) {
   using nlohmann::json;
@@ -152,7 +153,7 @@ nlohmann::json to_json(const LevelStructure& ls, const LevelsArgs& a) {
   j["field_G"] = ls.field_G();
   j["ground_zeeman"] = ls.ground_zeeman() == flyby::levels::GroundZeeman::kBreitRabi ? "breit-rabi" : "linear";
   j["wavelength_nm"] = ls.wavelength_nm();
-  j["gamma_MHz"] = ls.gamma_rad_per_us() / (2.0 * M_PI);
+  j["gamma_MHz"] = ls.gamma_rad_per_us() / (2.0 * std::numbers::pi);
   j["reduced_dipole_C_m"] = ls.reduced_dipole_C_m();
   j["notes"] = ls.notes();
   j["shift_reference"] = "J centroid (hyperfine-free energy) of each level's own J manifold";
@@ -196,7 +197,7 @@ void print_table(const LevelStructure& ls, std::ostream& os) {
   if (ls.two_I() > 0) os << "   I = " << half(ls.two_I()) << ", J = " << half(ls.two_J()) << " -> J' = " << half(ls.two_Jp());
   os << "\n";
   os << "  vacuum wavelength " << std::setprecision(6) << ls.wavelength_nm() << " nm, Gamma/2pi = "
-     << std::setprecision(4) << ls.gamma_rad_per_us() / (2.0 * M_PI) << " MHz, field " << ls.field_G() << " G, "
+     << std::setprecision(4) << ls.gamma_rad_per_us() / (2.0 * std::numbers::pi) << " MHz, field " << ls.field_G() << " G, "
      << (ls.ground_zeeman() == flyby::levels::GroundZeeman::kBreitRabi ? "Breit-Rabi ground levels" : "linear Zeeman")
      << "\n";
   os << "  shift: energy/h from the centroid of the level's J manifold; Zeeman: shift minus the\n"
@@ -206,11 +207,14 @@ void print_table(const LevelStructure& ls, std::ostream& os) {
     os << (h.excited ? "excited F'=" : "ground  F=") << half(h.two_F) << "   g_F = " << std::showpos << std::setprecision(7)
        << h.gF << "   hyperfine shift " << std::setprecision(4) << h.hyperfine_shift_MHz << " MHz" << std::noshowpos
        << "\n";
-    os << "      m      shift/MHz     Zeeman/MHz\n";
-    for (const auto& s : ls.sublevels()) {
+    os << "      m      shift/MHz     Zeeman/MHz" << (h.excited ? "   loss" : "") << "\n";
+    for (int i = 0; i < ls.dimension(); ++i) {
+      const auto& s = ls.sublevels()[i];
       if (s.excited != h.excited || s.two_F != h.two_F) continue;
       os << std::setw(7) << half(s.two_m) << std::showpos << std::setw(15) << std::setprecision(6) << shift_MHz(s)
-         << std::setw(15) << std::setprecision(6) << shift_MHz(s) - h.hyperfine_shift_MHz << std::noshowpos << "\n";
+         << std::setw(15) << std::setprecision(6) << shift_MHz(s) - h.hyperfine_shift_MHz << std::noshowpos;
+      if (h.excited) os << std::setw(10) << std::setprecision(6) << ls.loss_fraction(i);
+      os << "\n";
     }
     os << "\n";
   }
@@ -221,12 +225,14 @@ void print_table(const LevelStructure& ls, std::ostream& os) {
     os << std::setw(6) << half(s.ground_2F) << "  ->" << std::setw(4) << half(s.excited_2F) << std::setw(12)
        << std::setprecision(6) << s.S << "  " << as_fraction(s.S) << "\n";
   }
-  os << "\nbranching ratios: fraction of the decay of each excited F' into each ground F\n";
+  os << "\nbranching ratios (zero field): fraction of the decay of each excited F' into each ground F\n";
   os << "    F'  ->  F    fraction\n";
   int last = -1;
   double loss = 0.0;
   auto flush_loss = [&] {
-    if (last >= 0) os << "    F'=" << half(last) << " loss (ground levels not in the model): " << std::setprecision(6) << loss << "\n";
+    if (last >= 0) {
+      os << "    F'=" << half(last) << " loss (ground levels not in the model): " << std::setprecision(6) << loss << "\n";
+    }
   };
   for (const auto& b : ls.branching()) {
     if (b.excited_2F != last) {

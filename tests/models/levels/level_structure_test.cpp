@@ -10,8 +10,10 @@
 
 #include <algorithm>
 #include <cmath>
+#include <numbers>
 #include <map>
 #include <string>
+#include <tuple>
 #include <vector>
 
 #include "engine/common/constants.h"
@@ -39,7 +41,7 @@ LevelRequest full_request(const std::string& species, Line line, double field_G 
   return r;
 }
 
-double shift_MHz(const flyby::levels::Sublevel& s) { return s.energy_rad_per_us / (2 * M_PI); }
+double shift_MHz(const flyby::levels::Sublevel& s) { return s.energy_rad_per_us / (2 * std::numbers::pi); }
 
 // Energy (MHz) of sublevel (excited, 2F, 2m).
 double energy_of(const LevelStructure& ls, bool excited, int two_F, int two_m) {
@@ -300,9 +302,15 @@ TEST_CASE("decay into the model plus loss is the full decay on every excited sub
     for (Line line : {Line::kD1, Line::kD2}) {
       const auto full = full_request(name, line, 1.5);
       std::vector<std::vector<int>> ground_sets = {full.ground_2F, {full.ground_2F.front()}, {full.ground_2F.back()}};
-      for (const auto& gs : ground_sets) {
+      for (const auto& [gs, zeeman, B] : {std::tuple{ground_sets[0], GroundZeeman::kLinear, 1.5},
+                                          std::tuple{ground_sets[1], GroundZeeman::kLinear, 1.5},
+                                          std::tuple{ground_sets[2], GroundZeeman::kLinear, 1.5},
+                                          std::tuple{ground_sets[1], GroundZeeman::kBreitRabi, 300.0},
+                                          std::tuple{ground_sets[2], GroundZeeman::kBreitRabi, 300.0}}) {
         LevelRequest r = full;
         r.ground_2F = gs;
+        r.ground_zeeman = zeeman;
+        r.field_G = B;
         const auto ls = LevelStructure::from_species(r);
         Eigen::MatrixXd sum = Eigen::MatrixXd::Zero(ls.dimension(), ls.dimension());
         for (int q = -1; q <= 1; ++q) {
@@ -349,7 +357,7 @@ TEST_CASE("custom atom: closed transition with the given g_F, Γ and λ", "[leve
   a.field_G = 2.0;
   const auto ls = LevelStructure::from_custom(a);
   REQUIRE(ls.dimension() == 6);
-  CHECK(std::abs(ls.gamma_rad_per_us() - 2 * M_PI * 6.0) <= 1e-12);
+  CHECK(std::abs(ls.gamma_rad_per_us() - 2 * std::numbers::pi * 6.0) <= 1e-12);
   // Zeeman shift μB g_F m B (μB/h from CODATA 2018, engine/common/constants.h).
   CHECK(std::abs(shift_MHz(ls.sublevels()[5]) - flyby::constants::muB_over_h_MHz_per_G * (4.0 / 3) * 1.5 * 2.0) <= 1e-12);
   Eigen::MatrixXd sum = Eigen::MatrixXd::Zero(6, 6);
@@ -417,4 +425,70 @@ TEST_CASE("validity notes flag fields where the Zeeman model is approximate", "[
   auto req = full_request("Rb87", Line::kD2, 3.0);
   req.ground_zeeman = GroundZeeman::kBreitRabi;
   CHECK(LevelStructure::from_species(req).notes().empty());
+}
+
+TEST_CASE("Breit–Rabi dipole operators equal those of numerically diagonalized ground states", "[levels]") {
+  // Independent check of the mixed ground eigenstates: diagonalize
+  // H = A I·J + μB B (g_J J_z + g_I I_z) per m in the uncoupled |m_J⟩|m_I⟩ basis (Eigen), apply
+  // the J-level dipole operator √((2J′+1)/(2J+1)) ⟨J m_J|J′ m_J′; 1 q⟩ δ(m_I, m_I′) (Wigner–
+  // Eckart, Edmonds 1957 eq. 5.4.1) and couple the excited side with Clebsch–Gordan tables.
+  // Eigenvector signs follow the builder's convention (positive own |F m⟩ component).
+  // Bound: eigenvector error ~ eps‖H‖/gap ≲ 1e-12 here.
+  using flyby::angular::clebsch_gordan;
+  using flyby::constants::muB_over_h_MHz_per_G;
+  for (const auto& name : flyby::species::names()) {
+    const auto& s = flyby::species::lookup(name);
+    const int tI = s.two_I;
+    for (double B : {1.0, 300.0, 2000.0}) {
+      LevelRequest r = full_request(name, Line::kD2, B);
+      r.ground_zeeman = GroundZeeman::kBreitRabi;
+      const auto ls = LevelStructure::from_species(r);
+      const int n = ls.dimension();
+      for (int g = 0; g < n; ++g) {
+        const auto& sg = ls.sublevels()[g];
+        if (sg.excited) continue;
+        // Uncoupled states of this m and the Hamiltonian block on them.
+        std::vector<std::pair<int, int>> uc;  // (2mJ, 2mI)
+        for (int mJ = -1; mJ <= 1; mJ += 2)
+          if (std::abs(sg.two_m - mJ) <= tI) uc.emplace_back(mJ, sg.two_m - mJ);
+        const int k = static_cast<int>(uc.size());
+        Eigen::MatrixXd H = Eigen::MatrixXd::Zero(k, k);
+        for (int a = 0; a < k; ++a) {
+          H(a, a) = s.ground_A_MHz * (uc[a].first / 2.0) * (uc[a].second / 2.0) +
+                    muB_over_h_MHz_per_G * B * (s.ground_gJ * uc[a].first / 2.0 + s.gI * uc[a].second / 2.0);
+        }
+        if (k == 2) {  // (A/2)(J+I− + J−I+) couples (−1/2, mI) and (+1/2, mI − 1)
+          const double I = tI / 2.0, mI = uc[0].second / 2.0;  // uc[0] has mJ = −1/2
+          H(0, 1) = H(1, 0) = 0.5 * s.ground_A_MHz * std::sqrt(I * (I + 1) - mI * (mI - 1));
+        }
+        Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> es(H);
+        const double E = shift_MHz(sg);
+        int best = 0;
+        for (int a = 1; a < k; ++a)
+          if (std::abs(es.eigenvalues()[a] - E) < std::abs(es.eigenvalues()[best] - E)) best = a;
+        REQUIRE(std::abs(es.eigenvalues()[best] - E) <= 1e-8);
+        Eigen::VectorXd v = es.eigenvectors().col(best);
+        double own = 0.0;
+        for (int a = 0; a < k; ++a) own += v[a] * clebsch_gordan(1, uc[a].first, tI, uc[a].second, sg.two_F, sg.two_m);
+        REQUIRE(std::abs(own) > 0.5);
+        if (own < 0) v = -v;
+        for (int e = 0; e < n; ++e) {
+          const auto& se = ls.sublevels()[e];
+          if (!se.excited) continue;
+          const int two_q = sg.two_m - se.two_m;
+          if (std::abs(two_q) > 2) continue;
+          double expect = 0.0;
+          for (int a = 0; a < k; ++a) {
+            const int mI = uc[a].second, mJp = se.two_m - mI;  // excited m_I equals ground m_I
+            if (std::abs(mJp) > 3) continue;
+            expect += v[a] * std::sqrt(4.0 / 2.0) * clebsch_gordan(3, mJp, 2, two_q, 1, uc[a].first) *
+                      clebsch_gordan(3, mJp, tI, mI, se.two_F, se.two_m);
+          }
+          INFO(name << " B=" << B << " G, ground (2F,2m)=(" << sg.two_F << "," << sg.two_m << "), excited (" << se.two_F
+                    << "," << se.two_m << ")");
+          CHECK(std::abs(ls.lowering(two_q / 2)(g, e) - expect) <= 1e-12);
+        }
+      }
+    }
+  }
 }

@@ -3,6 +3,7 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
+#include <numbers>
 #include <string>
 
 #include "engine/common/errors.h"
@@ -18,7 +19,7 @@ TEST_CASE("87Rb D2 lifetime from the reduced dipole element", "[species]") {
   REQUIRE_FALSE(rb.d2.dipole_derived_from_gamma);
   const double gamma_MHz = sp::gamma_from_reduced_dipole_MHz(rb.d2.reduced_dipole_ea0, rb.d2.wavelength_nm, 1, 3);
   REQUIRE(std::isfinite(gamma_MHz));
-  const double tau_ns = 1e3 / (2 * M_PI * gamma_MHz);
+  const double tau_ns = 1e3 / (2 * std::numbers::pi * gamma_MHz);
   CHECK(std::abs(tau_ns - 26.235) <= 0.0005);
   // And with Steck's τ = 26.2348 ns [memory], within the rounding of both numbers: the dipole
   // element has 6 digits (Γ ∝ d²: 2 · 0.5e-5/4.22752 = 2.4e-6 relative) and τ 6 digits (1.9e-6).
@@ -32,7 +33,7 @@ TEST_CASE("133Cs D2 reduced dipole element is consistent with its Γ", "[species
   const auto& cs = sp::lookup("Cs133");
   const double gamma_MHz = sp::gamma_from_reduced_dipole_MHz(cs.d2.reduced_dipole_ea0, cs.d2.wavelength_nm, 1, 3);
   REQUIRE(std::isfinite(gamma_MHz));
-  const double tau_ns = 1e3 / (2 * M_PI * gamma_MHz);
+  const double tau_ns = 1e3 / (2 * std::numbers::pi * gamma_MHz);
   CHECK(std::abs(tau_ns / 30.405 - 1) <= 2.2e-5 + 1.6e-5);
 }
 
