@@ -15,7 +15,7 @@
 #include "engine/analysis/g2_csv.h"
 #include "engine/common/random.h"
 #include "engine/records/record_writer.h"
-#include "tests/records/scratch_dir.h"
+#include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
 using namespace flyby;
