@@ -17,7 +17,9 @@ import numpy as np  # noqa: E402
 
 def fmt_value(v, e):
     """Value with its standard error, rounded to two significant digits of the error."""
-    if not (e > 0 and np.isfinite(e)):
+    if v is None:
+        return "n/a"
+    if e is None or not (e > 0 and np.isfinite(e)):
         return "{:.6g}".format(v)
     digits = max(0, 1 - int(np.floor(np.log10(e))))
     return "{:.{d}f} ± {:.{d}f}".format(v, e, d=digits)
@@ -44,7 +46,8 @@ def main():
     lines = []
     for p in fit["parameters"]:
         lines.append("{:<22s} {}".format(p["name"], fmt_value(p["value"], p["std_error"])))
-    lines.append("chi2/dof = {:.1f}/{}   p = {:.3g}".format(fit["chi2"], fit["dof"], fit["p_value"]))
+    p_value = fit["p_value"] if fit["p_value"] is not None else float("nan")
+    lines.append("chi2/dof = {:.1f}/{}   p = {:.3g}".format(fit["chi2"], fit["dof"], p_value))
     ax.text(0.985, 0.97, "\n".join(lines), transform=ax.transAxes, ha="right", va="top", fontsize=7,
             family="monospace", multialignment="left", bbox=dict(boxstyle="round,pad=0.5", fc="white", ec="0.8", alpha=0.85))
     ax.legend(loc="lower left", fontsize=8)
