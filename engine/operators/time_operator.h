@@ -22,6 +22,25 @@ struct Coefficient {
   std::optional<int> control;    // index into the model's controls; empty: none
   bool conjugate = false;        // value uses conj(time_fn(t) · control)
 
+  static Coefficient scalar(Complex c) {
+    Coefficient k;
+    k.constant = c;
+    return k;
+  }
+  static Coefficient of_time(TimeFunction f, Complex scale = 1.0) {
+    Coefficient k;
+    k.constant = scale;
+    k.time_fn = std::move(f);
+    return k;
+  }
+  static Coefficient of_control(int control, Complex scale = 1.0, TimeFunction f = {}) {
+    Coefficient k;
+    k.constant = scale;
+    k.control = control;
+    k.time_fn = std::move(f);
+    return k;
+  }
+
   bool time_dependent() const { return static_cast<bool>(time_fn); }
   Complex value(double t_us, const std::vector<Complex>& controls) const {
     Complex v{1.0, 0.0};
