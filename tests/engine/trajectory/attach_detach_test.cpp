@@ -58,7 +58,7 @@ TEST_CASE("atom attached and detached mid-trajectory matches the time-dependent 
   opt.sample_times_us = {2.5, 7.5, 10.0, 12.5, 20.0};
   opt.observables = {n_op};
   trajectory::Integrator integ(model, opt);
-  const long m = test::scaled(3000);
+  const long m = test::scaled(2000);
   auto res = ensemble::run(integ, std::size_t(m), seed);
   REQUIRE(res.summary.failed == 0);
 
