@@ -32,7 +32,8 @@ TEST_CASE("channel completeness: splittings are accepted, incomplete sets refuse
   ch.push_back({"sigma-", true, std::sqrt(eta) * mix(i)});
   ch.push_back({"sigma+ lost", false, std::sqrt(1 - eta) * mix(-i)});
   ch.push_back({"sigma- lost", false, std::sqrt(1 - eta) * mix(i)});
-  for (int q = 0; q < 3; ++q) ch.push_back({"q" + std::to_string(q), false, Operator::local(2, aq[q], std::sqrt(gamma))});
+  const char* names[3] = {"q=-1", "q=0", "q=+1"};
+  for (int q = 0; q < 3; ++q) ch.push_back({names[q], false, Operator::local(2, aq[q], std::sqrt(gamma))});
   CHECK_NOTHROW(channels::check_channel_completeness(subs, ch, decay));
 
   // Missing the undetected remainder of one analyzer output: refused, naming the modes.
