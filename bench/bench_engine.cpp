@@ -151,4 +151,13 @@ BENCHMARK(BM_Rb87TwoModesCutoff2)->Unit(benchmark::kMillisecond);
 static void BM_Rb87TwoModesCutoff2Transit(benchmark::State& state) { run(state, rb_atom(3.0, 2, true)); }
 BENCHMARK(BM_Rb87TwoModesCutoff2Transit)->Unit(benchmark::kMillisecond);
 
+// The same with rtol = 1e-6 (fewer, longer Dormand–Prince steps): the accuracy/speed trade-off.
+static void BM_Rb87TwoModesCutoff2TransitRtol1e6(benchmark::State& state) {
+  trajectory::Options o;
+  o.rtol = 1e-6;
+  o.atol = 1e-8;
+  run(state, rb_atom(3.0, 2, true), o);
+}
+BENCHMARK(BM_Rb87TwoModesCutoff2TransitRtol1e6)->Unit(benchmark::kMillisecond);
+
 BENCHMARK_MAIN();

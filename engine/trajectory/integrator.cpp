@@ -4,6 +4,7 @@
 
 #include <Eigen/Eigenvalues>
 #include <algorithm>
+#include <atomic>
 #include <boost/math/tools/toms748_solve.hpp>
 #include <boost/numeric/odeint.hpp>
 #include <cmath>
@@ -40,7 +41,7 @@ struct Stretch {
 }  // namespace
 
 struct StretchCache {
-  const Model* owner = nullptr;
+  std::uint64_t owner = 0;  // Integrator::id_ of the cached entries (0: none)
   std::vector<std::shared_ptr<Stretch>> entries;  // most recently used last
   static constexpr std::size_t kCapacity = 16;
 };
@@ -310,8 +311,14 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
 
 }  // namespace
 
+namespace {
+std::atomic<std::uint64_t> next_integrator_id{1};
+}
+
 Integrator::Integrator(Model model, Options options)
-    : model_(std::make_shared<const Model>(std::move(model))), options_(std::move(options)) {
+    : model_(std::make_shared<const Model>(std::move(model))),
+      options_(std::move(options)),
+      id_(next_integrator_id.fetch_add(1)) {
   if (auto err = options_.validate()) throw InputError(*err);
   const Model& m = *model_;
   if (!(m.end_us > m.start_us) || !std::isfinite(m.start_us) || !std::isfinite(m.end_us))
@@ -365,9 +372,9 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
   const Model& m = *model_;
   const Options& opt = options_;
   StretchCache& cache = *workspace.cache_;
-  if (cache.owner != &m) {
+  if (cache.owner != id_) {
     cache.entries.clear();
-    cache.owner = &m;
+    cache.owner = id_;
   }
   TrajectoryResult result;
   Run run{&opt, {}};
@@ -407,6 +414,7 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
     run.summary.message = std::move(msg);
   };
   const Stretch* last = nullptr;
+  int zero_rate_redraws = 0;
   auto check_fock = [&]() {
     if (run.summary.top_fock_population_max > opt.fock_error_population) {
       fail(Status::kFockCutoffExceeded,
@@ -442,9 +450,20 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
         w[k] = cpsi[k].squaredNorm();
         total += w[k];
       }
-      if (!(total > 0) || !std::isfinite(total)) {
-        fail(Status::kNumericalFailure, "jump with zero total rate at t = " + std::to_string(t) + " us");
+      if (!std::isfinite(total)) {
+        fail(Status::kNumericalFailure, "non-finite jump rate at t = " + std::to_string(t) + " us");
         break;
+      }
+      if (!(total > 0)) {
+        // Only reachable when r rounds to ‖ψ‖² at a renormalized state that cannot jump (a draw
+        // within 1e-16 of 1): such a state has no jump, so redraw the threshold and go on.
+        if (++zero_rate_redraws > 100) {
+          fail(Status::kNumericalFailure, "jump with zero total rate at t = " + std::to_string(t) + " us");
+          break;
+        }
+        psi.normalize();
+        r = uniform_open0(rng);
+        continue;
       }
       const double u = uniform_open0(rng) * total;
       std::size_t pick = w.size() - 1;

@@ -9,6 +9,7 @@
 // 5(4) with dense output (Boost.Odeint) integrates, and the root is found on the interpolant.
 #pragma once
 
+#include <cstdint>
 #include <memory>
 
 #include "engine/common/random.h"
@@ -55,6 +56,7 @@ class Integrator {
  private:
   std::shared_ptr<const Model> model_;
   Options options_;
+  std::uint64_t id_;  // unique per Integrator, keys the Workspace cache (addresses can repeat)
 };
 
 }  // namespace flyby::trajectory
