@@ -112,7 +112,7 @@ struct Run {
   const Options* options;
   Summary summary;
   bool fock_warned = false;
-  bool stop = false;  // set by the Fock monitor on an error
+  double last_wait_us = 0;  // previous exact waiting time: the first bracket guess
 
   void monitor(const Stretch& s, const Vector& psi) {
     if (s.modes.empty()) return;
@@ -208,31 +208,50 @@ Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t
     return leg;
   }
   if (total <= 0) return leg;
-  const double g_end = g(total);
-  if (!std::isfinite(g_end)) {
+  // Bracket the root (the norm is non-increasing) starting from the previous waiting time of
+  // this trajectory (or the fastest time scale of H_eff): double upwards until ‖ψ‖² ≤ r or the
+  // stretch ends, or halve downwards until ‖ψ‖² > r; then TOMS 748 inside the bracket.
+  const double scale = s.lambda.cwiseAbs().maxCoeff();
+  double guess = run.last_wait_us > 0 ? run.last_wait_us : (scale > 0 ? 1.0 / scale : total);
+  double a = 0, ga = g0;
+  double b = std::min(guess, total), gb = g(b);
+  if (!std::isfinite(gb)) {
     leg.failed = true;
     return leg;
   }
-  if (g_end > 0) {
-    psi = tmp;
-    return leg;
-  }
-  // Bracket the root by doubling from the fastest time scale of H_eff, then TOMS 748.
-  const double scale = s.lambda.cwiseAbs().maxCoeff();
-  double a = 0, ga = g0;
-  double b = scale > 0 ? std::min(total, 1.0 / scale) : total;
-  double gb = b == total ? g_end : g(b);
-  while (gb > 0) {
-    a = b;
-    ga = gb;
-    b = std::min(total, 2 * b);
-    gb = b == total ? g_end : g(b);
+  if (gb > 0) {
+    while (gb > 0 && b < total) {
+      a = b;
+      ga = gb;
+      b = std::min(total, 2 * b);
+      gb = g(b);
+      if (!std::isfinite(gb)) {
+        leg.failed = true;
+        return leg;
+      }
+    }
+    if (gb > 0) {  // no jump in this stretch; tmp holds ψ(total)
+      psi = tmp;
+      return leg;
+    }
+  } else {
+    while (b > 4 * run.options->jump_time_tolerance_us) {
+      const double c = 0.5 * b, gc = g(c);
+      if (gc > 0) {
+        a = c;
+        ga = gc;
+        break;
+      }
+      b = c;
+      gb = gc;
+    }
   }
   std::uintmax_t iters = 200;
   auto [lo, hi] = boost::math::tools::toms748_solve(g, a, b, ga, gb, Tolerance{run.options->jump_time_tolerance_us}, iters);
   const double tau = 0.5 * (lo + hi);
   state_at(tau, psi);
   leg.jump_us = t0 + tau;
+  run.last_wait_us = tau;
   run.summary.norm_error_estimate = std::max(run.summary.norm_error_estimate, std::abs(psi.squaredNorm() - r) / r);
   return leg;
 }
