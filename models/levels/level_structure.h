@@ -17,6 +17,17 @@
 //    the axis), A_{+1} raises it (σ− light), A_0 keeps it (π light).
 //  * The physical decay of excited sublevel e is Γ; the part into ground levels that are in the
 //    model is Γ Σ_q ⟨e|A_q†A_q|e⟩, the rest is loss_fraction(e) (counted, never dropped).
+//  * Reduced elements follow Steck's alkali D-line notes (coupling order |J I F⟩):
+//      ⟨F‖d‖F′⟩ = ⟨J‖d‖J′⟩ (−1)^(F′+J+1+I) √((2F′+1)(2J+1)) {J J′ 1; F′ F I},
+//      ⟨F m|d_q|F′ m′⟩ = ⟨F‖d‖F′⟩ ⟨F m|F′ m′; 1 q⟩,
+//    so ⟨g|A_q|e⟩ = (−1)^(F′+J+1+I) √((2F′+1)(2J′+1)) {J J′ 1; F′ F I} ⟨F m_g|F′ m_e; 1 q⟩.
+//  * Zeeman shifts: +μB g_F m B (Steck's sign, μ = −μB g m) for every level by default. With
+//    GroundZeeman::kBreitRabi the ground (J = 1/2) states are the exact eigenstates of
+//    A I·J + μB B (g_J J_z + g_I I_z): energies from the Breit–Rabi formula, and A_q and the
+//    loss computed with the eigenvectors, which mix F = I ± 1/2 of the same m. Each is
+//    labelled by the (F, m) it connects to at B → 0, with a positive |F m⟩ component. The
+//    excited levels are always linear, valid while μB B ≪ their hyperfine splittings (see
+//    notes()).
 #pragma once
 
 #include <Eigen/Dense>
@@ -39,6 +50,8 @@ struct LevelRequest {
 };
 
 // A model atom given directly (one ground F, one excited F′), for tests and custom lines.
+// The transition is closed (loss 0) with A_q = √((2F′+1)/(2F+1)) ⟨F m_g|F′ m_e; 1 q⟩, and the
+// reduced dipole element is derived from Γ and λ as if F, F′ were J, J′.
 struct CustomAtom {
   int ground_2F = 1;               // twice F of the ground level
   int excited_2F = 3;              // twice F′ of the excited level; |F − F′| ≤ 1, not both 0
@@ -88,15 +101,44 @@ class LevelStructure {
   double field_G() const;
 
   // Fraction of excited sublevel i's decay (index into sublevels()) that goes to ground levels
-  // not in the model; 0 for ground sublevels.
+  // not in the model; 0 for ground sublevels. Equals the zero-field branching into the
+  // excluded levels, except with Breit–Rabi mixing (then it depends slightly on m′ and B).
   double loss_fraction(int i) const;
 
-  // Relative strength S_FF′ = (2F′+1)(2J+1){J J′ 1; F′ F I}² of each included pair.
+  // Relative strength S_FF′ = (2F′+1)(2J+1){J J′ 1; F′ F I}² of each included pair (ground
+  // F ascending, then F′ ascending); Σ over all F′ of the line of S_FF′ = 1. Custom atom: 1.
   struct Strength {
     int ground_2F, excited_2F;
     double S;
   };
   std::vector<Strength> strengths() const;
+
+  // Branching ratio of each included excited F′ into each ground F of the line (in the model or
+  // not): the fraction of the population decay of any sublevel of F′ that ends in level F,
+  // summed over polarizations and m, b(F′→F) = (2F+1)(2J′+1){J J′ 1; F′ F I}² (independent of
+  // m′; Σ_F b = 1; zero-field values). Entries with in_model = false are the loss channels.
+  // Custom atom: one entry 1.
+  struct Branching {
+    int excited_2F, ground_2F;
+    double fraction;
+    bool in_model;
+  };
+  std::vector<Branching> branching() const;
+
+  // Description of what was built.
+  const std::string& label() const;     // e.g. "87Rb D2" or "custom atom"
+  int two_I() const;                    // 2I (0 for a custom atom)
+  int two_J() const;                    // 2J of the ground level (2F for a custom atom)
+  int two_Jp() const;                   // 2J′ of the excited level (2F′ for a custom atom)
+  GroundZeeman ground_zeeman() const;
+
+  // Warnings about the validity of the model at this field, one line each (empty when none):
+  // linear ground Zeeman shifts that differ from Breit–Rabi by more than 1 kHz, and excited
+  // levels whose Zeeman energy g_J′ μB B exceeds 10 % of the smallest F′ spacing of the line.
+  const std::vector<std::string>& notes() const;
+
+  // The 2F values allowed for nuclear spin I and electronic J: |J − I| … J + I.
+  static std::vector<int> allowed_2F(int two_I, int two_J);
 
  private:
   LevelStructure() = default;
@@ -106,6 +148,11 @@ class LevelStructure {
   Eigen::MatrixXd lowering_[3];
   std::vector<double> loss_fraction_;
   std::vector<Strength> strengths_;
+  std::vector<Branching> branching_;
+  std::string label_;
+  int two_I_ = 0, two_J_ = 0, two_Jp_ = 0;
+  GroundZeeman ground_zeeman_ = GroundZeeman::kLinear;
+  std::vector<std::string> notes_;
   double gamma_rad_per_us_ = 0.0;
   double line_frequency_MHz_ = 0.0;
   double wavelength_nm_ = 0.0;
