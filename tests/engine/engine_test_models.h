@@ -124,7 +124,9 @@ struct MultilevelParams {
 // H = Σ_m zg·m |m⟩⟨m| + Σ_m′ (zeeman_e·m′ − Δ) |m′⟩⟨m′| + (Ω/2)(D + D†),
 // D = Σ_q c_q A_q† with the polarization ε = cosθ e₀ + sinθ x̂ in the B frame,
 // x̂ = (e₋₁ − e₊₁)/√2 → c₀ = cosθ, c₊₁ = −sinθ/√2, c₋₁ = +sinθ/√2.
-// Channels 0, 1, 2 = √Γ A_{−1} (σ+ light), √Γ A_0 (π), √Γ A_{+1} (σ− light), labelled by q.
+// Here q labels the change of m on *excitation* (A_q† takes |F m⟩ to |F′ m+q⟩, absorbing e_q
+// light). Channels 0, 1, 2 = √Γ A_{−1}, √Γ A_0, √Γ A_{+1}: decay m′ → m′+1 (σ− light),
+// m′ → m′ (π), m′ → m′−1 (σ+ light). (LevelStructure labels the same operators by −q.)
 inline trajectory::Model multilevel(const MultilevelParams& p, double end_us) {
   const int two_F = 2, two_Fp = 4, ng = 3, ne = 5, d = ng + ne;
   auto a = dipole_lowering(two_F, two_Fp);
