@@ -1,0 +1,127 @@
+// Start–stop correlation histograms of time-tag streams and their normalization to g2(τ).
+//
+// Definition (docs/analysis.md): every ordered pair of distinct tags (a, b) with a in the start
+// channel and b in the stop channel contributes one count at delay τ = t_b − t_a if |τ| falls
+// in the histogram — all pairs, not only nearest neighbours, negative and positive delays.
+// Bins are centred on k·W for k = −K..K (K = range / W), bin k holding τ ∈ [kW − W/2, kW + W/2).
+// A start may be restricted to time windows and to a heralding condition (a click in another
+// channel shortly before it). The normalization is g2 = counts / (N_start N_stop W / T).
+//
+// Cost is linear in the number of tags plus the number of counted pairs (two-pointer sweep over
+// the sorted stream). Tags arrive in chunks of any size; only the tags within the look-back
+// span of the newest tag are kept between chunks, so records larger than memory stream through.
+// Inside a chunk the work is split over OpenMP threads; counts are integers, so the merged
+// histogram is exactly the same for any thread count and any chunking.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+namespace flyby::analysis {
+
+// A half-open interval [begin_ps, end_ps) of record time.
+struct TimeWindow {
+  std::int64_t begin_ps = 0;  // first included time, ps
+  std::int64_t end_ps = 0;    // first excluded time, ps; must exceed begin_ps
+};
+
+// Heralded three-event condition: a start tag counts only if a tag in `channel` preceded it
+// by a delay d with min_delay_ps <= d <= max_delay_ps (d = t_start − t_herald).
+struct HeraldCondition {
+  int channel = 0;                 // herald channel id; must differ from the start channel
+  std::int64_t min_delay_ps = 0;   // shortest herald→start delay, ps, >= 0
+  std::int64_t max_delay_ps = 0;   // longest herald→start delay, ps, >= min_delay_ps
+};
+
+struct CorrelatorOptions {
+  int start_channel = 0;              // channel id of the start tags (the "a" of t_b − t_a)
+  int stop_channel = 1;               // channel id of the stop tags; equal to start: autocorrelation
+  std::int64_t bin_width_ps = 1000;   // histogram bin width W, ps, >= 1
+  std::int64_t range_ps = 100000;     // largest |τ| of a bin centre, ps; rounded down to a multiple of W; >= 0
+  // Record duration T used in the normalization, ps. Unset: last minus first tag time seen.
+  std::optional<std::int64_t> duration_ps;
+  // Start tags count only inside these windows (sorted, non-overlapping). Empty: everywhere.
+  std::vector<TimeWindow> start_windows;
+  std::optional<HeraldCondition> herald;  // unset: no heralding condition
+  int threads = 0;                        // OpenMP threads inside a chunk; 0: OpenMP default
+  // A thread is given at least this many tags of a chunk (fewer threads for small chunks,
+  // where starting a parallel region costs more than it saves), >= 1.
+  std::size_t min_tags_per_thread = 16384;
+
+  // Empty if the options are usable, else one line naming the first problem.
+  std::optional<std::string> validate() const;
+};
+
+enum class CorrelatorStatus {
+  kSuccess,
+  kNoStarts,   // no start tag passed the conditions: g2 is undefined (NaN)
+  kNoStops,    // no stop tag: g2 is undefined (NaN)
+  kNoDuration, // duration unknown or zero: g2 is undefined (NaN)
+};
+const char* to_string(CorrelatorStatus s);
+
+struct CorrelationHistogram {
+  CorrelatorStatus status = CorrelatorStatus::kSuccess;
+  std::string message;                 // why the status is not kSuccess; empty on success
+  CorrelatorOptions options;           // the options used (range rounded to a multiple of W)
+  int half_bins = 0;                   // K: bins are k = −K..K
+  std::vector<std::int64_t> tau_ps;    // bin centres k·W, ps
+  std::vector<std::uint64_t> counts;   // pair counts per bin
+  std::vector<double> g2;              // counts / expected_counts_per_bin
+  std::vector<double> g2_err;          // √counts / expected_counts_per_bin (Poisson)
+  std::uint64_t n_start_seen = 0;      // start-channel tags in the stream
+  std::uint64_t n_start_used = 0;      // start tags that passed windows and herald: N_start
+  std::uint64_t n_stop = 0;            // stop-channel tags: N_stop
+  std::uint64_t n_herald = 0;          // herald-channel tags (0 without a herald condition)
+  std::uint64_t n_tags = 0;            // all tags seen, any channel
+  std::int64_t duration_ps = 0;        // T used in the normalization
+  double expected_counts_per_bin = 0;  // N_start N_stop W / T
+
+  std::string brief_report() const;
+  std::string full_report() const;
+};
+
+// Streaming correlator: feed time-ordered chunks, then call finish() once.
+class Correlator {
+ public:
+  // Throws flyby::InputError if options.validate() reports a problem.
+  explicit Correlator(CorrelatorOptions options);
+
+  // Appends a chunk of tags. Times must not decrease within or across chunks (InputError
+  // naming the tag otherwise). Channels other than start, stop and herald are only counted.
+  void add_chunk(std::span<const std::int64_t> time_ps, std::span<const int> channel);
+  void add_chunk(std::span<const std::int64_t> time_ps, std::span<const std::uint8_t> channel);
+  void add_chunk(std::span<const std::int64_t> time_ps, std::span<const std::uint16_t> channel);
+
+  // Processes what is left and returns the histogram. The correlator is spent afterwards.
+  CorrelationHistogram finish();
+
+ private:
+  enum Kind : std::uint8_t { kStart = 1, kStop = 2, kHerald = 4 };
+  template <class Ch>
+  void ingest(std::span<const std::int64_t> time_ps, std::span<const Ch> channel);
+  void process(std::size_t n_ready);
+  void trim();
+
+  CorrelatorOptions opt_;
+  int half_bins_ = 0;
+  std::int64_t lookback_ps_ = 0;        // largest |τ| that can fall in a bin
+  std::int64_t herald_lookback_ps_ = 0; // largest herald delay kept
+  std::vector<std::int64_t> time_;      // buffered relevant tags (carry + new)
+  std::vector<std::uint8_t> kind_;      // Kind bits per buffered tag
+  std::vector<std::uint8_t> used_;      // start tag passed the conditions (valid for processed tags)
+  std::size_t n_done_ = 0;              // buffered tags already processed (the carry)
+  std::vector<std::uint64_t> counts_;
+  std::uint64_t n_start_seen_ = 0, n_start_used_ = 0, n_stop_ = 0, n_herald_ = 0, n_tags_ = 0;
+  std::optional<std::int64_t> first_time_, last_time_;
+  bool finished_ = false;
+};
+
+// One-shot convenience for tags already in memory.
+CorrelationHistogram correlate(std::span<const std::int64_t> time_ps, std::span<const int> channel,
+                               const CorrelatorOptions& options);
+
+}  // namespace flyby::analysis
