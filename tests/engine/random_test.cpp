@@ -23,7 +23,7 @@ TEST_CASE("keyed streams are reproducible and distinct", "[random]") {
   REQUIRE(first.size() == 200);
 }
 
-TEST_CASE("uniform_open0 stays in (0,1] with the right mean", "[random]") {
+TEST_CASE("uniform_open0 stays in the half-open unit interval with the right mean", "[random]") {
   auto r = make_stream(3, StreamPurpose::kTest, 0);
   const int n = 200000;
   double mean = 0.0, m2 = 0.0;  // Welford

@@ -1,0 +1,67 @@
+// Many independent trajectories in parallel (OpenMP, dynamic scheduling). Trajectory i always
+// draws from flyby::make_stream(seed, StreamPurpose::kTrajectory, first_index + i) and results
+// are stored by index, so the output is bit-identical for any thread count.
+#pragma once
+
+#include <cstdint>
+#include <exception>
+#include <functional>
+#include <string>
+#include <vector>
+
+#include "engine/trajectory/integrator.h"
+
+namespace flyby::ensemble {
+
+struct Options {
+  int threads = 0;                  // OpenMP threads; 0 = the OpenMP default (OMP_NUM_THREADS)
+  std::uint64_t first_index = 0;    // stream index of the first trajectory (for MPI blocks)
+};
+
+struct Summary {
+  std::size_t trajectories = 0;
+  std::size_t failed = 0;            // trajectories whose status is not success
+  long jumps = 0;
+  long steps = 0;
+  double norm_error_estimate = 0;    // max over trajectories
+  double top_fock_population_max = 0;
+  std::string first_failure;         // message of the lowest-index failure, or empty
+  std::string brief_report() const;
+};
+
+struct Result {
+  std::vector<trajectory::TrajectoryResult> trajectories;  // by index
+  Summary summary;
+};
+
+Result run(const trajectory::Integrator& integrator, std::size_t count, std::uint64_t seed,
+           const Options& options = {});
+
+// Threads OpenMP would use by default (OMP_NUM_THREADS or the core count).
+int omp_default_threads();
+
+// Generic ordered parallel map: out[i] = fn(i, workspace) for i < count, with one Workspace per
+// thread and dynamic scheduling. The first exception (lowest index) is rethrown after the loop.
+template <class T>
+std::vector<T> map_ordered(std::size_t count, int threads,
+                           const std::function<T(std::size_t, trajectory::Workspace&)>& fn) {
+  std::vector<T> out(count);
+  std::vector<std::exception_ptr> errors(count);
+#pragma omp parallel num_threads(threads > 0 ? threads : omp_default_threads())
+  {
+    trajectory::Workspace ws;
+#pragma omp for schedule(dynamic, 1)
+    for (long i = 0; i < long(count); ++i) {
+      try {
+        out[std::size_t(i)] = fn(std::size_t(i), ws);
+      } catch (...) {
+        errors[std::size_t(i)] = std::current_exception();
+      }
+    }
+  }
+  for (auto& e : errors)
+    if (e) std::rethrow_exception(e);
+  return out;
+}
+
+}  // namespace flyby::ensemble

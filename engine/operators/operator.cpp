@@ -1,0 +1,174 @@
+// Sums of products of local operators: algebra, matrix-free application and sparse assembly.
+#include "engine/operators/operator.h"
+
+#include <algorithm>
+
+#include "engine/common/errors.h"
+
+namespace flyby::operators {
+
+Operator Operator::identity(Complex weight) {
+  Operator o;
+  o.terms_.push_back(ProductTerm{weight, {}});
+  return o;
+}
+
+Operator Operator::local(SubsystemId target, LocalMatrix matrix, Complex weight) {
+  FLYBY_CHECK(matrix.rows() == matrix.cols(), "local operator must be square");
+  return product({LocalFactor{target, std::move(matrix)}}, weight);
+}
+
+Operator Operator::product(std::vector<LocalFactor> factors, Complex weight) {
+  std::sort(factors.begin(), factors.end(),
+            [](const LocalFactor& a, const LocalFactor& b) { return a.target < b.target; });
+  for (std::size_t k = 1; k < factors.size(); ++k)
+    FLYBY_CHECK(factors[k].target != factors[k - 1].target, "product term with a repeated subsystem");
+  Operator o;
+  o.terms_.push_back(ProductTerm{weight, std::move(factors)});
+  return o;
+}
+
+Operator& Operator::operator+=(const Operator& other) {
+  terms_.insert(terms_.end(), other.terms_.begin(), other.terms_.end());
+  return *this;
+}
+
+Operator& Operator::operator*=(Complex s) {
+  for (auto& t : terms_) t.weight *= s;
+  return *this;
+}
+
+static ProductTerm multiply(const ProductTerm& a, const ProductTerm& b) {
+  ProductTerm r;
+  r.weight = a.weight * b.weight;
+  std::size_t i = 0, j = 0;
+  while (i < a.factors.size() || j < b.factors.size()) {
+    if (j == b.factors.size() || (i < a.factors.size() && a.factors[i].target < b.factors[j].target)) {
+      r.factors.push_back(a.factors[i++]);
+    } else if (i == a.factors.size() || b.factors[j].target < a.factors[i].target) {
+      r.factors.push_back(b.factors[j++]);
+    } else {
+      r.factors.push_back(LocalFactor{a.factors[i].target, a.factors[i].matrix * b.factors[j].matrix});
+      ++i;
+      ++j;
+    }
+  }
+  return r;
+}
+
+Operator operator*(const Operator& a, const Operator& b) {
+  Operator r;
+  for (const auto& ta : a.terms_)
+    for (const auto& tb : b.terms_) r.terms_.push_back(multiply(ta, tb));
+  return r;
+}
+
+Operator Operator::adjoint() const {
+  Operator r;
+  for (const auto& t : terms_) {
+    ProductTerm a{std::conj(t.weight), {}};
+    for (const auto& f : t.factors) a.factors.push_back(LocalFactor{f.target, f.matrix.adjoint()});
+    r.terms_.push_back(std::move(a));
+  }
+  return r;
+}
+
+std::vector<SubsystemId> Operator::support() const {
+  std::vector<SubsystemId> s;
+  for (const auto& t : terms_)
+    for (const auto& f : t.factors) s.push_back(f.target);
+  std::sort(s.begin(), s.end());
+  s.erase(std::unique(s.begin(), s.end()), s.end());
+  return s;
+}
+
+static bool term_active(const ProductTerm& t, const Layout& layout) {
+  for (const auto& f : t.factors)
+    if (!layout.contains(f.target)) return false;
+  return true;
+}
+
+bool Operator::active_in(const Layout& layout) const {
+  for (const auto& t : terms_)
+    if (term_active(t, layout)) return true;
+  return false;
+}
+
+// out = (I ⊗ M ⊗ I)·in for a factor with dimension d and stride s.
+static void apply_factor(const LocalMatrix& m, long d, long s, const Vector& in, Vector& out) {
+  const long block = d * s;
+  const long outer = in.size() / block;
+  out.setZero(in.size());
+  for (long o = 0; o < outer; ++o) {
+    const long base = o * block;
+    for (long a = 0; a < d; ++a)
+      for (long b = 0; b < d; ++b) {
+        const Complex mab = m(a, b);
+        if (mab == Complex(0.0)) continue;
+        for (long i = 0; i < s; ++i) out[base + a * s + i] += mab * in[base + b * s + i];
+      }
+  }
+}
+
+void apply(const Operator& op, const Layout& layout, const Vector& in, Vector& out) {
+  out.setZero(in.size());
+  Vector a, b;
+  for (const auto& t : op.terms()) {
+    if (!term_active(t, layout)) continue;
+    a = in;
+    for (const auto& f : t.factors) {
+      FLYBY_CHECK(f.matrix.rows() == layout.dimension_of(f.target), "local operator dimension mismatch");
+      apply_factor(f.matrix, f.matrix.rows(), layout.stride_of(f.target), a, b);
+      a.swap(b);
+    }
+    out += t.weight * a;
+  }
+}
+
+Complex expectation(const Operator& op, const Layout& layout, const Vector& psi) {
+  Vector o;
+  apply(op, layout, psi, o);
+  return psi.dot(o) / psi.squaredNorm();
+}
+
+// Sparse full-space matrix of one local factor.
+static SparseMatrix factor_sparse(const LocalMatrix& m, long d, long s, long n) {
+  std::vector<Eigen::Triplet<Complex>> trip;
+  const long block = d * s;
+  long nnz_local = 0;
+  for (long a = 0; a < d; ++a)
+    for (long b = 0; b < d; ++b) nnz_local += (m(a, b) != Complex(0.0));
+  trip.reserve(nnz_local * (n / d));
+  for (long o = 0; o < n / block; ++o)
+    for (long a = 0; a < d; ++a)
+      for (long b = 0; b < d; ++b) {
+        if (m(a, b) == Complex(0.0)) continue;
+        for (long i = 0; i < s; ++i) trip.emplace_back(o * block + a * s + i, o * block + b * s + i, m(a, b));
+      }
+  SparseMatrix r(n, n);
+  r.setFromTriplets(trip.begin(), trip.end());
+  return r;
+}
+
+SparseMatrix to_sparse(const Operator& op, const Layout& layout) {
+  const long n = layout.dimension();
+  SparseMatrix sum(n, n);
+  for (const auto& t : op.terms()) {
+    if (!term_active(t, layout)) continue;
+    SparseMatrix p;
+    if (t.factors.empty()) {
+      p.resize(n, n);
+      p.setIdentity();
+    }
+    for (const auto& f : t.factors) {
+      FLYBY_CHECK(f.matrix.rows() == layout.dimension_of(f.target), "local operator dimension mismatch");
+      SparseMatrix fs = factor_sparse(f.matrix, f.matrix.rows(), layout.stride_of(f.target), n);
+      if (p.size() == 0) p = std::move(fs); else p = SparseMatrix(p * fs);
+    }
+    sum += t.weight * p;
+  }
+  sum.prune(Complex(0.0));
+  return sum;
+}
+
+}  // namespace flyby::operators

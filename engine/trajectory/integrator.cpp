@@ -1,0 +1,544 @@
+// Waiting-time quantum-jump integrator: stretches, exact and adaptive propagators, root finding
+// of the jump time, channel choice, events and the Fock monitor. See integrator.h.
+#include "engine/trajectory/integrator.h"
+
+#include <Eigen/Eigenvalues>
+#include <algorithm>
+#include <atomic>
+#include <boost/math/tools/toms748_solve.hpp>
+#include <boost/numeric/odeint.hpp>
+#include <cmath>
+#include <limits>
+#include <sstream>
+
+#include "engine/common/errors.h"
+
+namespace flyby::trajectory {
+
+using operators::SparseMatrix;
+using StateVec = std::vector<double>;
+namespace odeint = boost::numeric::odeint;
+
+namespace {
+
+constexpr Complex kI{0.0, 1.0};
+
+// Everything fixed during one stretch: layout, control values and the matrices built from them.
+struct Stretch {
+  std::vector<SubsystemId> present;
+  std::vector<Complex> controls;
+  space::Layout layout;
+  SparseMatrix heff_const;  // time-independent part of H_eff = H − (i/2) Σ C†C
+  std::vector<std::pair<const operators::Coefficient*, SparseMatrix>> timed;  // c_k(t)·H_k
+  std::vector<int> channel_ids;
+  std::vector<SparseMatrix> channel_ops;
+  std::vector<std::pair<SubsystemId, int>> modes;  // (mode id, index of its top Fock state)
+  bool exact = false;
+  Eigen::MatrixXcd v, v_inv;
+  Eigen::VectorXcd lambda;
+};
+
+}  // namespace
+
+struct StretchCache {
+  std::uint64_t owner = 0;  // Integrator::id_ of the cached entries (0: none)
+  std::vector<std::shared_ptr<Stretch>> entries;  // most recently used last
+  static constexpr std::size_t kCapacity = 16;
+};
+
+Workspace::Workspace() : cache_(std::make_unique<StretchCache>()) {}
+Workspace::~Workspace() = default;
+Workspace::Workspace(Workspace&&) noexcept = default;
+Workspace& Workspace::operator=(Workspace&&) noexcept = default;
+
+const char* to_string(Status s) {
+  switch (s) {
+    case Status::kSuccess: return "success";
+    case Status::kFockCutoffExceeded: return "Fock cutoff exceeded";
+    case Status::kStepLimit: return "step limit reached";
+    case Status::kNumericalFailure: return "numerical failure";
+  }
+  return "unknown";
+}
+
+std::string Summary::brief_report() const {
+  std::ostringstream o;
+  o << "trajectory: " << to_string(status) << ", " << jumps << " jumps, " << steps() << " steps, norm error "
+    << norm_error_estimate << ", top Fock population " << top_fock_population_max;
+  if (!message.empty()) o << " (" << message << ")";
+  return o.str();
+}
+
+std::string Summary::full_report() const {
+  std::ostringstream o;
+  o << "status                  " << to_string(status) << "\n"
+    << "message                 " << (message.empty() ? "-" : message) << "\n"
+    << "end time (us)           " << end_us << "\n"
+    << "jumps                   " << jumps << "\n"
+    << "adaptive steps          " << adaptive_steps << "\n"
+    << "exponential evaluations " << exponential_evaluations << "\n"
+    << "exact stretches         " << exact_stretches << "\n"
+    << "adaptive stretches      " << adaptive_stretches << "\n"
+    << "eigendecompositions     " << eigendecompositions << "\n"
+    << "norm error estimate     " << norm_error_estimate << "\n"
+    << "top Fock population max " << top_fock_population_max << "\n";
+  for (const auto& w : warnings) o << "warning                 " << w << "\n";
+  return o.str();
+}
+
+std::optional<std::string> Options::validate() const {
+  auto bad = [](const char* f, const char* why) { return std::string("trajectory option ") + f + ": " + why; };
+  if (!(rtol > 0 && rtol <= 0.1)) return bad("rtol", "must be in (0, 0.1]");
+  if (!(atol > 0)) return bad("atol", "must be > 0");
+  if (max_step_us && !(*max_step_us > 0)) return bad("max_step_us", "must be > 0");
+  if (!(jump_time_tolerance_us > 0)) return bad("jump_time_tolerance_us", "must be > 0");
+  if (!(max_eigenvector_condition >= 1)) return bad("max_eigenvector_condition", "must be >= 1");
+  if (max_exact_dimension < 1) return bad("max_exact_dimension", "must be >= 1");
+  if (!(fock_warning_population > 0 && fock_warning_population <= fock_error_population &&
+        fock_error_population <= 1))
+    return bad("fock_*_population", "need 0 < warning <= error <= 1");
+  if (!std::is_sorted(sample_times_us.begin(), sample_times_us.end()))
+    return bad("sample_times_us", "must be sorted");
+  for (double t : sample_times_us)
+    if (!std::isfinite(t)) return bad("sample_times_us", "must be finite");
+  if (max_steps < 1) return bad("max_steps", "must be >= 1");
+  return std::nullopt;
+}
+
+namespace {
+
+// State of one running trajectory that the propagators update.
+struct Run {
+  const Options* options;
+  Summary summary;
+  bool fock_warned = false;
+  double last_wait_us = 0;  // previous exact waiting time: the first bracket guess
+
+  void monitor(const Stretch& s, const Vector& psi) {
+    if (s.modes.empty()) return;
+    const double n2 = psi.squaredNorm();
+    if (!(n2 > 0)) return;
+    for (const auto& [id, top] : s.modes) {
+      const double p = s.layout.local_population(id, top, psi) / n2;
+      if (p > summary.top_fock_population_max) summary.top_fock_population_max = p;
+    }
+  }
+};
+
+std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const std::vector<SubsystemId>& present,
+                                       const std::vector<Complex>& controls, double t_us, Summary& summary) {
+  auto s = std::make_shared<Stretch>();
+  s->present = present;
+  s->controls = controls;
+  s->layout = space::Layout(&m.subsystems, present);
+  const long n = s->layout.dimension();
+  SparseMatrix h(n, n), decay(n, n);
+  for (const auto& term : m.hamiltonian.terms()) {
+    if (!term.op.active_in(s->layout)) continue;
+    SparseMatrix op = operators::to_sparse(term.op, s->layout);
+    if (term.coefficient.time_dependent())
+      s->timed.emplace_back(&term.coefficient, std::move(op));
+    else
+      h += term.coefficient.constant_value(controls) * op;
+  }
+  // Hermiticity of H at the stretch start (a model error, not numerical trouble).
+  {
+    SparseMatrix ht = h;
+    for (const auto& [c, op] : s->timed) ht += c->value(t_us, controls) * op;
+    SparseMatrix adj = ht.adjoint();
+    const double diff = SparseMatrix(ht - adj).norm();
+    if (!(diff <= 1e-10 * std::max(1.0, ht.norm())))
+      throw InputError("model Hamiltonian is not Hermitian at t = " + std::to_string(t_us) +
+                       " us (||H - H^dagger|| = " + std::to_string(diff) + ")");
+  }
+  for (std::size_t k = 0; k < m.channels.size(); ++k) {
+    if (!m.channels[k].op.active_in(s->layout)) continue;
+    SparseMatrix c = operators::to_sparse(m.channels[k].op, s->layout);
+    decay += SparseMatrix(SparseMatrix(c.adjoint()) * c);
+    s->channel_ids.push_back(int(k));
+    s->channel_ops.push_back(std::move(c));
+  }
+  s->heff_const = h - Complex(0.0, 0.5) * decay;
+  for (auto id : present)
+    if (m.subsystems[id].kind == space::SubsystemKind::kMode) s->modes.emplace_back(id, m.subsystems[id].dimension - 1);
+  if (s->timed.empty() && opt.exact_exponential && n <= opt.max_exact_dimension) {
+    Eigen::MatrixXcd dense = Eigen::MatrixXcd(s->heff_const);
+    Eigen::ComplexEigenSolver<Eigen::MatrixXcd> es(dense);
+    ++summary.eigendecompositions;
+    if (es.info() == Eigen::Success) {
+      s->v = es.eigenvectors();
+      s->lambda = es.eigenvalues();
+      Eigen::PartialPivLU<Eigen::MatrixXcd> lu(s->v);
+      s->v_inv = lu.inverse();
+      const double cond = s->v.norm() * s->v_inv.norm() / double(n);
+      s->exact = std::isfinite(cond) && cond <= opt.max_eigenvector_condition;
+    }
+  }
+  return s;
+}
+
+// Result of propagating over [t0, t1] with threshold r.
+struct Leg {
+  std::optional<double> jump_us;
+  bool failed = false;
+};
+
+struct Tolerance {
+  double tol;
+  bool operator()(double a, double b) const { return std::abs(b - a) <= tol; }
+};
+
+Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t1, double r) {
+  Leg leg;
+  const double total = t1 - t0;
+  const Eigen::VectorXcd c = s.v_inv * psi;
+  Vector tmp;
+  auto state_at = [&](double tau, Vector& out) {
+    out = s.v * (c.array() * (-kI * s.lambda.array() * tau).exp()).matrix();
+  };
+  auto g = [&](double tau) {
+    state_at(tau, tmp);
+    ++run.summary.exponential_evaluations;
+    run.monitor(s, tmp);
+    return tmp.squaredNorm() - r;
+  };
+  const double g0 = psi.squaredNorm() - r;
+  if (g0 <= 0) {
+    leg.jump_us = t0;
+    return leg;
+  }
+  if (total <= 0) return leg;
+  // Bracket the root (the norm is non-increasing) starting from the previous waiting time of
+  // this trajectory (or the fastest time scale of H_eff): double upwards until ‖ψ‖² ≤ r or the
+  // stretch ends, or halve downwards until ‖ψ‖² > r; then TOMS 748 inside the bracket.
+  const double scale = s.lambda.cwiseAbs().maxCoeff();
+  double guess = run.last_wait_us > 0 ? run.last_wait_us : (scale > 0 ? 1.0 / scale : total);
+  double a = 0, ga = g0;
+  double b = std::min(guess, total), gb = g(b);
+  if (!std::isfinite(gb)) {
+    leg.failed = true;
+    return leg;
+  }
+  if (gb > 0) {
+    while (gb > 0 && b < total) {
+      a = b;
+      ga = gb;
+      b = std::min(total, 2 * b);
+      gb = g(b);
+      if (!std::isfinite(gb)) {
+        leg.failed = true;
+        return leg;
+      }
+    }
+    if (gb > 0) {  // no jump in this stretch; tmp holds ψ(total)
+      psi = tmp;
+      return leg;
+    }
+  } else {
+    while (b > 4 * run.options->jump_time_tolerance_us) {
+      const double c = 0.5 * b, gc = g(c);
+      if (gc > 0) {
+        a = c;
+        ga = gc;
+        break;
+      }
+      b = c;
+      gb = gc;
+    }
+  }
+  std::uintmax_t iters = 200;
+  auto [lo, hi] = boost::math::tools::toms748_solve(g, a, b, ga, gb, Tolerance{run.options->jump_time_tolerance_us}, iters);
+  const double tau = 0.5 * (lo + hi);
+  state_at(tau, psi);
+  leg.jump_us = t0 + tau;
+  run.last_wait_us = tau;
+  run.summary.norm_error_estimate = std::max(run.summary.norm_error_estimate, std::abs(psi.squaredNorm() - r) / r);
+  return leg;
+}
+
+Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, double t1, double r) {
+  Leg leg;
+  const double g0 = psi.squaredNorm() - r;
+  if (g0 <= 0) {
+    leg.jump_us = t0;
+    return leg;
+  }
+  if (t1 <= t0) return leg;
+  const long n = psi.size();
+  const std::vector<Complex>& controls = s.controls;
+  auto system = [&](const StateVec& x, StateVec& dxdt, double t) {
+    Eigen::Map<const Vector> in(reinterpret_cast<const Complex*>(x.data()), n);
+    Eigen::Map<Vector> out(reinterpret_cast<Complex*>(dxdt.data()), n);
+    out.noalias() = s.heff_const * in;
+    for (const auto& [c, op] : s.timed) out.noalias() += c->value(t, controls) * (op * in);
+    out *= -kI;
+  };
+  StateVec x(2 * n);
+  Eigen::Map<Vector>(reinterpret_cast<Complex*>(x.data()), n) = psi;
+  const Options& opt = *run.options;
+  auto stepper = odeint::make_dense_output(opt.atol, opt.rtol, opt.max_step_us.value_or(0.0),
+                                           odeint::runge_kutta_dopri5<StateVec>());
+  double bound = s.heff_const.norm();
+  for (const auto& [c, op] : s.timed) bound += std::abs(c->value(t0, controls)) * op.norm();
+  double dt0 = std::min(t1 - t0, 0.01 / std::max(bound, 1e-12));
+  if (opt.max_step_us) dt0 = std::min(dt0, *opt.max_step_us);
+  stepper.initialize(x, t0, dt0);
+  StateVec xi(2 * n);
+  auto norm2 = [n](const StateVec& v) {
+    return Eigen::Map<const Vector>(reinterpret_cast<const Complex*>(v.data()), n).squaredNorm();
+  };
+  auto to_psi = [&](const StateVec& v) { psi = Eigen::Map<const Vector>(reinterpret_cast<const Complex*>(v.data()), n); };
+  double ga = g0;
+  Vector probe;
+  while (true) {
+    if (run.summary.adaptive_steps >= opt.max_steps) {
+      run.summary.status = Status::kStepLimit;
+      run.summary.message = "max_steps reached";
+      leg.failed = true;
+      return leg;
+    }
+    auto [ta, tb] = stepper.do_step(system);
+    ++run.summary.adaptive_steps;
+    const bool reaches_end = tb >= t1;
+    const double thi = reaches_end ? t1 : tb;
+    if (reaches_end) stepper.calc_state(t1, xi); else xi = stepper.current_state();
+    const double ghi = norm2(xi) - r;
+    if (!std::isfinite(ghi)) {
+      leg.failed = true;
+      return leg;
+    }
+    to_psi(xi);
+    run.monitor(s, psi);
+    if (ghi <= 0) {
+      auto g = [&](double t) {
+        stepper.calc_state(t, xi);
+        return norm2(xi) - r;
+      };
+      std::uintmax_t iters = 200;
+      auto [lo, hi] = boost::math::tools::toms748_solve(g, ta, thi, ga, ghi, Tolerance{opt.jump_time_tolerance_us}, iters);
+      const double tj = 0.5 * (lo + hi);
+      stepper.calc_state(tj, xi);
+      to_psi(xi);
+      leg.jump_us = tj;
+      run.summary.norm_error_estimate = std::max(run.summary.norm_error_estimate, std::abs(psi.squaredNorm() - r) / r);
+      return leg;
+    }
+    if (reaches_end) return leg;
+    ga = ghi;
+  }
+}
+
+}  // namespace
+
+namespace {
+std::atomic<std::uint64_t> next_integrator_id{1};
+}
+
+Integrator::Integrator(Model model, Options options)
+    : model_(std::make_shared<const Model>(std::move(model))),
+      options_(std::move(options)),
+      id_(next_integrator_id.fetch_add(1)) {
+  if (auto err = options_.validate()) throw InputError(*err);
+  const Model& m = *model_;
+  if (!(m.end_us > m.start_us) || !std::isfinite(m.start_us) || !std::isfinite(m.end_us))
+    throw InputError("trajectory model: end_us must be finite and > start_us");
+  for (const auto& s : m.subsystems)
+    if (s.dimension < 1) throw InputError("subsystem '" + s.name + "' has dimension < 1");
+  channels::check_channel_completeness(m.subsystems, m.channels, m.physical_decay);
+  const int nsub = int(m.subsystems.size());
+  std::vector<bool> present(nsub, false);
+  for (const auto& f : m.initial) {
+    if (f.subsystem < 0 || f.subsystem >= nsub) throw InputError("trajectory model: initial state of an unknown subsystem");
+    if (present[f.subsystem]) throw InputError("trajectory model: subsystem '" + m.subsystems[f.subsystem].name + "' initially present twice");
+    if (f.state.size() != m.subsystems[f.subsystem].dimension || std::abs(f.state.norm() - 1) > 1e-9)
+      throw InputError("trajectory model: initial state of '" + m.subsystems[f.subsystem].name + "' must be normalized with length " +
+                       std::to_string(m.subsystems[f.subsystem].dimension));
+    present[f.subsystem] = true;
+  }
+  std::vector<Event> ev = m.events;
+  std::stable_sort(ev.begin(), ev.end(), [](const Event& a, const Event& b) { return a.time_us < b.time_us; });
+  for (const auto& e : ev) {
+    if (!std::isfinite(e.time_us)) throw InputError("trajectory model: event time is not finite");
+    if (auto* a = std::get_if<Attach>(&e.action)) {
+      if (a->subsystem < 0 || a->subsystem >= nsub || present[a->subsystem])
+        throw InputError("trajectory model: attach at t = " + std::to_string(e.time_us) + " us of an unknown or present subsystem");
+      const auto& sub = m.subsystems[a->subsystem];
+      if (a->state.size() != sub.dimension || std::abs(a->state.norm() - 1) > 1e-9)
+        throw InputError("trajectory model: attach state of '" + sub.name + "' must be normalized with length " + std::to_string(sub.dimension));
+      present[a->subsystem] = true;
+    } else if (auto* d = std::get_if<Detach>(&e.action)) {
+      if (d->subsystem < 0 || d->subsystem >= nsub || !present[d->subsystem])
+        throw InputError("trajectory model: detach at t = " + std::to_string(e.time_us) + " us of an absent subsystem");
+      present[d->subsystem] = false;
+    } else if (auto* c = std::get_if<SetControl>(&e.action)) {
+      if (c->control < 0 || c->control >= int(m.controls.size()))
+        throw InputError("trajectory model: event sets an unknown control " + std::to_string(c->control));
+    }
+  }
+  for (const auto& t : m.hamiltonian.terms())
+    if (t.coefficient.control && (*t.coefficient.control < 0 || *t.coefficient.control >= int(m.controls.size())))
+      throw InputError("trajectory model: a Hamiltonian term uses an unknown control");
+  for (const auto& t : options_.sample_times_us)
+    if (t < m.start_us || t > m.end_us) throw InputError("trajectory option sample_times_us: a time outside [start_us, end_us]");
+}
+
+TrajectoryResult Integrator::run(Rng& rng) const {
+  Workspace ws;
+  return run(rng, ws);
+}
+
+TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
+  const Model& m = *model_;
+  const Options& opt = options_;
+  StretchCache& cache = *workspace.cache_;
+  if (cache.owner != id_) {
+    cache.entries.clear();
+    cache.owner = id_;
+  }
+  TrajectoryResult result;
+  Run run{&opt, {}};
+  result.samples.assign(opt.sample_times_us.size(),
+                        std::vector<Complex>(opt.observables.size(), Complex(std::nan(""), std::nan(""))));
+
+  std::vector<SubsystemId> present;
+  Vector psi = Vector::Ones(1);
+  space::Layout layout(&m.subsystems, {});
+  for (const auto& f : m.initial) psi = layout.attach(f.subsystem, psi, f.state);
+  std::vector<Complex> controls = m.controls;
+  Schedule schedule;
+  for (const auto& e : m.events) schedule.add(e.time_us, e.action);
+  JumpHook hook = m.on_jump;  // per-trajectory copy (see model.h)
+
+  auto stretch_for = [&](double t) -> const Stretch& {
+    for (std::size_t k = cache.entries.size(); k-- > 0;) {
+      auto& e = cache.entries[k];
+      if (e->present == layout.present() && e->controls == controls) {
+        auto hit = e;
+        cache.entries.erase(cache.entries.begin() + long(k));
+        cache.entries.push_back(hit);
+        return *cache.entries.back();
+      }
+    }
+    auto s = build_stretch(m, opt, layout.present(), controls, t, run.summary);
+    if (cache.entries.size() >= StretchCache::kCapacity) cache.entries.erase(cache.entries.begin());
+    cache.entries.push_back(std::move(s));
+    return *cache.entries.back();
+  };
+
+  double t = m.start_us;
+  double r = uniform_open0(rng);
+  std::size_t next_sample = 0;
+  auto fail = [&](Status st, std::string msg) {
+    run.summary.status = st;
+    run.summary.message = std::move(msg);
+  };
+  const Stretch* last = nullptr;
+  int zero_rate_redraws = 0;
+  auto check_fock = [&]() {
+    if (run.summary.top_fock_population_max > opt.fock_error_population) {
+      fail(Status::kFockCutoffExceeded,
+           "population of the top kept Fock state reached " + std::to_string(run.summary.top_fock_population_max) +
+               " (error level " + std::to_string(opt.fock_error_population) + "); raise " + opt.fock_cutoff_setting);
+      return false;
+    }
+    return true;
+  };
+  while (t < m.end_us && run.summary.ok()) {
+    double stop = m.end_us;
+    if (!schedule.empty()) stop = std::min(stop, std::max(t, schedule.next_time_us()));
+    if (next_sample < opt.sample_times_us.size()) stop = std::min(stop, std::max(t, opt.sample_times_us[next_sample]));
+    const Stretch& s = stretch_for(t);
+    if (&s != last) {
+      if (s.exact) ++run.summary.exact_stretches; else ++run.summary.adaptive_stretches;
+      last = &s;
+    }
+    Leg leg = s.exact ? propagate_exact(s, run, psi, t, stop, r) : propagate_adaptive(s, run, psi, t, stop, r);
+    if (leg.failed) {
+      if (run.summary.ok()) fail(Status::kNumericalFailure, "non-finite state at t = " + std::to_string(t) + " us");
+      break;
+    }
+    if (!check_fock()) break;
+    if (leg.jump_us) {
+      t = *leg.jump_us;
+      // Channel with probability ∝ ‖C ψ‖².
+      std::vector<double> w(s.channel_ops.size());
+      std::vector<Vector> cpsi(s.channel_ops.size());
+      double total = 0;
+      for (std::size_t k = 0; k < w.size(); ++k) {
+        cpsi[k] = s.channel_ops[k] * psi;
+        w[k] = cpsi[k].squaredNorm();
+        total += w[k];
+      }
+      if (!std::isfinite(total)) {
+        fail(Status::kNumericalFailure, "non-finite jump rate at t = " + std::to_string(t) + " us");
+        break;
+      }
+      if (!(total > 0)) {
+        // Only reachable when r rounds to ‖ψ‖² at a renormalized state that cannot jump (a draw
+        // within 1e-16 of 1): such a state has no jump, so redraw the threshold and go on.
+        if (++zero_rate_redraws > 100) {
+          fail(Status::kNumericalFailure, "jump with zero total rate at t = " + std::to_string(t) + " us");
+          break;
+        }
+        psi.normalize();
+        r = uniform_open0(rng);
+        continue;
+      }
+      const double u = uniform_open0(rng) * total;
+      std::size_t pick = w.size() - 1;
+      double acc = 0;
+      for (std::size_t k = 0; k < w.size(); ++k) {
+        acc += w[k];
+        if (u <= acc && w[k] > 0) {
+          pick = k;
+          break;
+        }
+      }
+      while (w[pick] <= 0) --pick;
+      psi = cpsi[pick] / std::sqrt(w[pick]);
+      const int channel = s.channel_ids[pick];
+      result.jumps.push_back(JumpRecord{t, channel});
+      ++run.summary.jumps;
+      r = uniform_open0(rng);
+      if (hook) {
+        hook(JumpInfo{t, channel, m.channels[channel].detected}, schedule);
+      }
+      continue;
+    }
+    t = stop;
+    while (next_sample < opt.sample_times_us.size() && opt.sample_times_us[next_sample] <= t) {
+      for (std::size_t j = 0; j < opt.observables.size(); ++j)
+        result.samples[next_sample][j] = operators::expectation(opt.observables[j], layout, psi);
+      ++next_sample;
+    }
+    while (!schedule.empty() && schedule.next_time_us() <= t && t < m.end_us) {
+      Event e = schedule.pop();
+      if (auto* a = std::get_if<Attach>(&e.action)) {
+        if (layout.contains(a->subsystem) || a->subsystem < 0 || a->subsystem >= int(m.subsystems.size()) ||
+            a->state.size() != m.subsystems[a->subsystem].dimension)
+          throw InputError("trajectory: attach at t = " + std::to_string(t) + " us of a present or unknown subsystem, or wrong state size");
+        psi = layout.attach(a->subsystem, psi, a->state);
+      } else if (auto* d = std::get_if<Detach>(&e.action)) {
+        if (!layout.contains(d->subsystem))
+          throw InputError("trajectory: detach at t = " + std::to_string(t) + " us of an absent subsystem");
+        int outcome = 0;
+        psi = layout.detach(d->subsystem, psi, rng, outcome);
+        result.measurements.push_back(MeasurementRecord{t, d->subsystem, outcome});
+      } else if (auto* c = std::get_if<SetControl>(&e.action)) {
+        if (c->control < 0 || c->control >= int(controls.size()))
+          throw InputError("trajectory: event sets an unknown control " + std::to_string(c->control));
+        controls[c->control] = c->value;
+      }
+    }
+  }
+  run.summary.end_us = t;
+  if (run.summary.top_fock_population_max > opt.fock_warning_population && run.summary.ok())
+    run.summary.warnings.push_back("population of the top kept Fock state reached " +
+                                   std::to_string(run.summary.top_fock_population_max) + " (warning level " +
+                                   std::to_string(opt.fock_warning_population) + "); consider raising " +
+                                   opt.fock_cutoff_setting);
+  result.summary = std::move(run.summary);
+  return result;
+}
+
+}  // namespace flyby::trajectory
