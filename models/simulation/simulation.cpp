@@ -16,6 +16,7 @@
 #include "engine/ensemble/ensemble.h"
 #include "engine/records/record_writer.h"
 #include "engine/trajectory/integrator.h"
+#include "models/detectors/detector_config.h"
 #include "models/scenario/atom_view.h"
 
 namespace flyby::simulation {
@@ -46,6 +47,7 @@ struct AtomMatrices {
   std::vector<double> frame_offset;          // energy subtracted per sublevel (far levels)
   std::vector<bool> excited;
   std::vector<double> loss;                  // loss fraction per sublevel
+  std::vector<double> zero_field;            // reference-frame energies at B = 0
 };
 
 // Sublevel energies in the reference frame at B = 0 (the hyperfine offsets).
@@ -100,6 +102,7 @@ AtomMatrices atom_matrices(const config::CheckedScenario& s) {
     m.lowering[q + 1] = A;
     m.coupling[q + 1] = C;
   }
+  m.zero_field = e0;
   m.frame_offset.assign(m.dim, 0.0);
   m.excited.assign(m.dim, false);
   m.loss.assign(m.dim, 0.0);
@@ -176,8 +179,21 @@ std::vector<double> empty_resonator_rates_per_us(const config::CheckedScenario& 
   return rates;
 }
 
+namespace {
+trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
+                              const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
+                              std::vector<int>& channel_of);
+}  // namespace
+
 trajectory::Model build_cluster_model(const config::CheckedScenario& s, const std::vector<ClusterAtom>& atoms,
                                       double start_us, double end_us, std::vector<int>& channel_of) {
+  return build_model(s, atom_matrices(s), atoms, start_us, end_us, channel_of);
+}
+
+namespace {
+trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
+                              const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
+                              std::vector<int>& channel_of) {
   trajectory::Model m;
   m.start_us = start_us;
   m.end_us = end_us;
@@ -234,7 +250,6 @@ trajectory::Model build_cluster_model(const config::CheckedScenario& s, const st
   }
 
   // Atoms.
-  const AtomMatrices A = atom_matrices(s);
   const double gamma = s.levels.gamma_rad_per_us();
   for (const auto& ca : atoms) {
     const space::SubsystemId id = space::SubsystemId(m.subsystems.size());
@@ -256,9 +271,8 @@ trajectory::Model build_cluster_model(const config::CheckedScenario& s, const st
     m.hamiltonian.add(Operator::local(id, diag.asDiagonal().toDenseMatrix()));
     if (s.config.field.gradient_G_per_mm) {
       // Zeeman part scaled by B∥(t)/|B|: add (B∥/|B| − 1)·(E(|B|) − E(0)).
-      const std::vector<double> e0 = zero_field_energies(s);
       Eigen::VectorXcd z = Eigen::VectorXcd::Zero(A.dim);
-      for (int k = 0; k < int(E.size()); ++k) z(k) = E[k] - e0[k];
+      for (int k = 0; k < int(E.size()); ++k) z(k) = E[k] - A.zero_field[k];
       const double B = s.config.field.field_G.norm();
       m.hamiltonian.add(Coefficient::of_time([view, B](double t) { return Complex(view.field_along_axis_G(t) / B - 1.0); }),
                         Operator::local(id, z.asDiagonal().toDenseMatrix()));
@@ -368,6 +382,7 @@ trajectory::Model build_cluster_model(const config::CheckedScenario& s, const st
   }
   return m;
 }
+}  // namespace
 
 // ---------------------------------------------------------------------------------------------
 
@@ -484,7 +499,7 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     TaskResult r;
     if (t.end_us > t.start_us) {
       std::vector<int> channel_of;
-      trajectory::Model model = build_cluster_model(s, t.atoms, t.start_us, t.end_us, channel_of);
+      trajectory::Model model = build_model(s, AM, t.atoms, t.start_us, t.end_us, channel_of);
       trajectory::Integrator integ(model, topt);
       Rng rng = make_stream(sum.seed, StreamPurpose::kTrajectory, t.stream);
       const auto tr = integ.run(rng, ws);
@@ -556,26 +571,13 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
                    [](const detectors::Photon& p, const detectors::Photon& q) { return p.time_ps < q.time_ps; });
 
   // Detector chain and record.
-  detectors::DetectorChainOptions dopt;
+  // One detector channel per [[channel]] in file order (models/detectors/detector_config.h);
+  // channels that trigger a feedback rule are heralds.
+  detectors::DetectorChainOptions dopt = detectors::detector_chain_options(s.config);
   std::set<std::string> heralds;
   for (const auto& r : s.config.feedback) heralds.insert(r.trigger_channel);
-  for (std::size_t c = 0; c < s.config.detectors.size(); ++c) {
-    const auto& p = s.config.detectors[c];
-    detectors::DetectorChannelOptions d;
-    d.channel = {records::ChannelId(c), p.channel,
-                 heralds.count(p.channel) ? records::ChannelRole::kHerald : records::ChannelRole::kDetector};
-    d.dead_time_ns = p.dead_time_ns;
-    d.dead_time_model = p.paralyzable ? detectors::DeadTimeModel::kParalyzable : detectors::DeadTimeModel::kNonParalyzable;
-    d.jitter_fwhm_ps = p.jitter_fwhm_ps;
-    d.dark_rate_per_s = p.dark_rate_per_s;
-    d.afterpulse_probability = p.afterpulse_probability;
-    d.afterpulse_delay_ns = p.afterpulse_delay_ns;
-    d.afterpulse_time_constant_ns = p.afterpulse_time_constant_ns;
-    d.cable_delay_ns = p.cable_delay_ns;
-    dopt.channels.push_back(d);
-  }
-  dopt.tagger.resolution_ps = s.config.run.tagger_resolution_ps;
-  dopt.tagger.max_rate_per_s = s.config.run.tagger_max_rate_per_s;
+  for (auto& d : dopt.channels)
+    if (heralds.count(d.channel.name)) d.channel.role = records::ChannelRole::kHerald;
   const std::int64_t end_ps = to_ps(D);
   detectors::DetectorChain chain(dopt, sum.seed, 0, end_ps);
   records::RecordHeader header;
