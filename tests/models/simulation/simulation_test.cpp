@@ -95,7 +95,7 @@ flux_per_s = 1e-6
 kind = "stationary"
 positions_um = [[0, 5000, 0]]
 )";
-  const std::string cfg = write(d, "c.toml", empty_resonator_config(seed, source, direct ? 0.05 : 0.004));
+  const std::string cfg = write(d, "c.toml", empty_resonator_config(seed, source, direct ? 0.05 : 0.002));
   const auto s = flyby::config::check_scenario(flyby::config::load_config_file(cfg));
   flyby::simulation::Options o;
   o.output_path = (d / "run.h5").string();
@@ -106,7 +106,7 @@ positions_um = [[0, 5000, 0]]
   const auto rec = flyby::records::read_record(o.output_path);
   const double kappa = 2 * M_PI * 3.0;                         // rad/µs
   const double rate_per_us = 2 * kappa * 0.7 * 0.6 * 0.02;     // 2κ T η n̄
-  const double D_us = (direct ? 0.05 : 0.004) * 1e6;
+  const double D_us = (direct ? 0.05 : 0.002) * 1e6;
   const double mean = rate_per_us * D_us;
   const double n = double(count_channel(rec, "H"));
   REQUIRE(std::isfinite(n));
