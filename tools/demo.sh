@@ -8,3 +8,10 @@ cmake --build build -j "${JOBS:-$(nproc)}"
 echo
 echo "== demo: level structure of 87Rb D2, F=2 -> F'=1,2,3 at 1.5 G =="
 ./build/tools/flyby levels --species Rb87 --line D2 --ground 2 --excited 1,2,3 --field-G 1.5
+echo
+echo "== demo: 5 ms of configs/thermal_beam_resonator.toml (85Rb beam through a resonator) =="
+mkdir -p out
+./build/tools/flyby simulate configs/thermal_beam_resonator.toml -o out/demo.h5 --duration-s 0.005
+echo
+echo "== the record it wrote =="
+./build/tools/flyby info out/demo.h5

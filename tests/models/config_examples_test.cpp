@@ -34,7 +34,7 @@ TEST_CASE("the example scenarios describe what their comments say", "[config][ex
   const CheckedScenario beam = check_scenario(load_config_file((dir / "thermal_beam_resonator.toml").string()));
   REQUIRE(beam.resonator);
   CHECK(beam.mean_atoms_in_mode.has_value());
-  CHECK(std::abs(*beam.mean_atoms_in_mode - 0.3) < 1e-9);
+  CHECK(std::abs(*beam.mean_atoms_in_mode - 0.05) < 1e-9);
   CHECK(beam.config.feedback.size() == 1);
   const CheckedScenario free = check_scenario(load_config_file((dir / "stationary_free_space.toml").string()));
   CHECK(!free.resonator);

@@ -1,0 +1,662 @@
+// Scenario assembly and the simulate driver (see simulation.h and docs/simulate.md).
+#include "models/simulation/simulation.h"
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <map>
+#include <mutex>
+#include <nlohmann/json.hpp>
+#include <set>
+#include <sstream>
+
+#include "engine/common/errors.h"
+#include "engine/common/random.h"
+#include "engine/ensemble/ensemble.h"
+#include "engine/records/record_writer.h"
+#include "engine/trajectory/integrator.h"
+#include "models/detectors/detector_config.h"
+#include "models/scenario/atom_view.h"
+
+namespace flyby::simulation {
+
+namespace {
+
+using Complex = std::complex<double>;
+using operators::Coefficient;
+using operators::LocalMatrix;
+using operators::Operator;
+
+constexpr double kTwoPi = 6.283185307179586;
+// Couplings between a ground and an excited hyperfine level whose zero-field transition is more
+// than this far from the reference transition are left out (and such uncoupled levels are put at
+// zero hyperfine energy in the frame, so the integrator's step is not set by a GHz phase). Light
+// shifts neglected by this are ≤ Ω²/(4Δ): 25 kHz for Ω/2π = 10 MHz at Δ/2π = 1 GHz.
+constexpr double kFarDetuningMHz = 1000.0;
+
+std::uint64_t kFallbackBit = std::uint64_t(1) << 63;
+std::uint64_t kEmptyBit = std::uint64_t(1) << 62;
+
+// Per-atom matrices shared by every atom of a scenario.
+struct AtomMatrices {
+  int dim = 0;                       // sublevels (+1 for the 'lost' state when there is loss)
+  bool has_lost = false;
+  std::array<LocalMatrix, 3> lowering;       // A_q (dim × dim), for decay and detection
+  std::array<LocalMatrix, 3> coupling;       // A_q with far-detuned pairs removed, for H
+  std::vector<double> frame_offset;          // energy subtracted per sublevel (far levels)
+  std::vector<bool> excited;
+  std::vector<double> loss;                  // loss fraction per sublevel
+  std::vector<double> zero_field;            // reference-frame energies at B = 0
+};
+
+// Sublevel energies in the reference frame at B = 0 (the hyperfine offsets).
+std::vector<double> zero_field_energies(const config::CheckedScenario& s) {
+  if (!s.energies_zero_field_rad_per_us.empty()) return s.energies_zero_field_rad_per_us;
+  const auto& c = s.config.atom;
+  levels::LevelStructure zero = c.custom ? [&] {
+    levels::CustomAtom a = c.custom_atom;
+    a.field_G = 0.0;
+    return levels::LevelStructure::from_custom(a);
+  }() : [&] {
+    levels::LevelRequest req = c.request;
+    req.field_G = 0.0;
+    return levels::LevelStructure::from_species(req);
+  }();
+  return config::reference_frame_energies(zero, c.reference_ground_2F, c.reference_excited_2F);
+}
+
+AtomMatrices atom_matrices(const config::CheckedScenario& s) {
+  const auto& L = s.levels;
+  const int n = L.dimension();
+  AtomMatrices m;
+  double total_loss = 0.0;
+  for (int i = 0; i < n; ++i) total_loss += L.loss_fraction(i);
+  m.has_lost = total_loss > 0.0;
+  m.dim = n + (m.has_lost ? 1 : 0);
+  const auto& sub = L.sublevels();
+  const std::vector<double> e0 = zero_field_energies(s);
+  // Zero-field transition offsets from the reference, per (ground 2F, excited 2F′).
+  std::map<int, double> ground_e0, excited_e0;
+  for (int i = 0; i < n; ++i) {
+    // centre of the hyperfine level at zero field (mean over m is the level's zero-field energy)
+    (sub[i].excited ? excited_e0 : ground_e0)[sub[i].two_F] = e0[i];
+  }
+  auto far = [&](int g, int e) {
+    const double d = excited_e0[sub[e].two_F] - ground_e0[sub[g].two_F];
+    return std::abs(d) > kTwoPi * kFarDetuningMHz;
+  };
+  std::vector<bool> coupled(n, false);
+  for (int q = -1; q <= 1; ++q) {
+    LocalMatrix A = LocalMatrix::Zero(m.dim, m.dim), C = LocalMatrix::Zero(m.dim, m.dim);
+    const Eigen::MatrixXd& a = L.lowering(q);
+    for (int g = 0; g < n; ++g)
+      for (int e = 0; e < n; ++e) {
+        if (a(g, e) == 0.0) continue;
+        A(g, e) = a(g, e);
+        if (!far(g, e)) {
+          C(g, e) = a(g, e);
+          coupled[g] = coupled[e] = true;
+        }
+      }
+    m.lowering[q + 1] = A;
+    m.coupling[q + 1] = C;
+  }
+  m.zero_field = e0;
+  m.frame_offset.assign(m.dim, 0.0);
+  m.excited.assign(m.dim, false);
+  m.loss.assign(m.dim, 0.0);
+  // A hyperfine level with no coupling left is shifted to zero hyperfine energy (exact: nothing
+  // connects its amplitudes coherently to the rest any more; Zeeman splittings inside it stay).
+  std::map<std::pair<bool, int>, bool> level_coupled;
+  for (int i = 0; i < n; ++i) level_coupled[{sub[i].excited, sub[i].two_F}] |= coupled[i];
+  for (int i = 0; i < n; ++i) {
+    m.excited[i] = sub[i].excited;
+    m.loss[i] = L.loss_fraction(i);
+    if (!level_coupled[{sub[i].excited, sub[i].two_F}]) m.frame_offset[i] = e0[i];
+  }
+  return m;
+}
+
+std::string atom_label(const source::Arrival& a) { return "atom " + std::to_string(a.id); }
+
+// Coherent state of a truncated mode (normalized after truncation).
+space::Vector coherent_state(Complex alpha, int cutoff) {
+  space::Vector v(cutoff + 1);
+  Complex c = std::exp(-0.5 * std::norm(alpha));
+  for (int n = 0; n <= cutoff; ++n) {
+    v(n) = c;
+    c *= alpha / std::sqrt(double(n + 1));
+  }
+  return v / v.norm();
+}
+
+LocalMatrix annihilation(int cutoff) {
+  LocalMatrix a = LocalMatrix::Zero(cutoff + 1, cutoff + 1);
+  for (int n = 1; n <= cutoff; ++n) a(n - 1, n) = std::sqrt(double(n));
+  return a;
+}
+
+bool is_static(const source::Arrival& a, const config::CheckedScenario& s) {
+  return a.velocity_m_per_s.norm() == 0.0 && !s.config.field.gradient_G_per_mm.has_value();
+}
+
+}  // namespace
+
+double frame_detuning_rad_per_us(const config::CheckedScenario& s) {
+  if (!s.config.resonator_drives.empty()) return kTwoPi * s.config.resonator_drives.front().detuning_MHz;
+  if (!s.config.side_drives.empty()) return kTwoPi * s.config.side_drives.front().detuning_MHz;
+  return 0.0;
+}
+
+std::array<Complex, 2> empty_resonator_amplitudes(const config::CheckedScenario& s, double t_us,
+                                                  const std::vector<double>& levels) {
+  std::array<Complex, 2> alpha{0.0, 0.0};
+  if (!s.resonator) return alpha;
+  const double frame = frame_detuning_rad_per_us(s);
+  const auto& R = *s.resonator;
+  for (std::size_t d = 0; d < s.config.resonator_drives.size(); ++d) {
+    const auto& drv = s.config.resonator_drives[d];
+    const double E = s.resonator_drive_amplitude_rad_per_us[d] * (d < levels.size() ? levels[d] : 1.0);
+    const double wd = kTwoPi * drv.detuning_MHz;
+    const int i = drv.mode;
+    const Complex phase = std::exp(Complex(0.0, -(wd - frame) * t_us));
+    alpha[i] += Complex(0.0, -E) * phase / Complex(R.kappa_rad_per_us, R.detuning_rad_per_us[i] - wd);
+  }
+  return alpha;
+}
+
+std::vector<double> empty_resonator_rates_per_us(const config::CheckedScenario& s) {
+  std::vector<double> rates(s.config.detectors.size(), 0.0);
+  if (!s.resonator) return rates;
+  const auto alpha = empty_resonator_amplitudes(s, 0.0);
+  for (const auto& ch : s.resonator->channels) {
+    if (!ch.detected) continue;
+    for (std::size_t c = 0; c < s.config.detectors.size(); ++c)
+      if (s.config.detectors[c].channel == ch.channel)
+        rates[c] += std::norm(ch.coefficients(0) * alpha[0] + ch.coefficients(1) * alpha[1]);
+  }
+  return rates;
+}
+
+namespace {
+trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
+                              const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
+                              std::vector<int>& channel_of);
+}  // namespace
+
+trajectory::Model build_cluster_model(const config::CheckedScenario& s, const std::vector<ClusterAtom>& atoms,
+                                      double start_us, double end_us, std::vector<int>& channel_of) {
+  return build_model(s, atom_matrices(s), atoms, start_us, end_us, channel_of);
+}
+
+namespace {
+trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
+                              const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
+                              std::vector<int>& channel_of) {
+  trajectory::Model m;
+  m.start_us = start_us;
+  m.end_us = end_us;
+  channel_of.clear();
+  std::map<std::string, int> det_index;
+  for (std::size_t c = 0; c < s.config.detectors.size(); ++c) det_index[s.config.detectors[c].channel] = int(c);
+  auto add_channel = [&](const std::string& label, bool detected, Operator op) {
+    m.channels.push_back({label, detected, std::move(op)});
+    channel_of.push_back(detected ? det_index.at(label) : -1);
+  };
+
+  const double frame = frame_detuning_rad_per_us(s);
+  const int n_side = int(s.config.side_drives.size());
+  const int n_res = int(s.config.resonator_drives.size());
+  for (int j = 0; j < n_side; ++j) {
+    m.controls.push_back(1.0);
+    m.control_names.push_back(s.config.side_drives[j].name);
+  }
+  for (int d = 0; d < n_res; ++d) {
+    m.controls.push_back(1.0);
+    m.control_names.push_back(s.config.resonator_drives[d].name);
+  }
+
+  // Resonator modes 0 and 1.
+  const bool has_res = s.resonator.has_value();
+  std::array<LocalMatrix, 2> a;
+  if (has_res) {
+    const auto& R = *s.resonator;
+    const int cut = R.fock_cutoff;
+    const auto alpha = empty_resonator_amplitudes(s, start_us);
+    for (int i = 0; i < 2; ++i) {
+      m.subsystems.push_back(space::Subsystem::mode(i == 0 ? "mode 1" : "mode 2", cut));
+      m.initial.push_back({space::SubsystemId(i), coherent_state(alpha[i], cut)});
+      a[i] = annihilation(cut);
+      const double w = R.detuning_rad_per_us[i] - frame;
+      if (w != 0.0) m.hamiltonian.add(Operator::local(i, a[i].adjoint() * a[i], w));
+      m.physical_decay += Operator::local(i, a[i].adjoint() * a[i], 2.0 * R.kappa_rad_per_us);
+    }
+    for (int d = 0; d < n_res; ++d) {
+      const auto& drv = s.config.resonator_drives[d];
+      const double E = s.resonator_drive_amplitude_rad_per_us[d];
+      const double delta = kTwoPi * drv.detuning_MHz - frame;
+      // E (a e^{iδt} + a† e^{−iδt}): the a† term with e^{−iδt}, plus its Hermitian conjugate.
+      Coefficient c = delta == 0.0
+                          ? Coefficient::of_control(n_side + d, E)
+                          : Coefficient::of_control(n_side + d, E,
+                                                    [delta](double t) { return std::exp(Complex(0.0, -delta * t)); });
+      m.hamiltonian.add_hermitian(c, Operator::local(drv.mode, a[drv.mode].adjoint()));
+    }
+    for (const auto& ch : R.channels) {
+      Operator op = Operator::local(0, a[0], ch.coefficients(0)) + Operator::local(1, a[1], ch.coefficients(1));
+      add_channel(ch.channel, ch.detected, op);
+    }
+  }
+
+  // Atoms.
+  const double gamma = s.levels.gamma_rad_per_us();
+  for (const auto& ca : atoms) {
+    const space::SubsystemId id = space::SubsystemId(m.subsystems.size());
+    m.subsystems.push_back(space::Subsystem::levels(atom_label(ca.arrival), A.dim));
+    space::Vector psi = space::Vector::Zero(A.dim);
+    psi(ca.arrival.initial_sublevel) = 1.0;
+    if (ca.interval.begin_us <= start_us)
+      m.initial.push_back({id, psi});
+    else
+      m.events.push_back({ca.interval.begin_us, trajectory::Attach{id, psi}});
+    if (ca.interval.end_us < end_us) m.events.push_back({ca.interval.end_us, trajectory::Detach{id}});
+
+    const scenario::AtomView view(s, ca.arrival);
+    const bool fixed = is_static(ca.arrival, s);
+    // Energies in the frame: E_s − Δ_frame on excited sublevels, far levels without hyperfine offset.
+    const auto& E = view.energies_rad_per_us();
+    Eigen::VectorXcd diag = Eigen::VectorXcd::Zero(A.dim);
+    for (int k = 0; k < int(E.size()); ++k) diag(k) = E[k] - A.frame_offset[k] - (A.excited[k] ? frame : 0.0);
+    m.hamiltonian.add(Operator::local(id, diag.asDiagonal().toDenseMatrix()));
+    if (s.config.field.gradient_G_per_mm) {
+      // Zeeman part scaled by B∥(t)/|B|: add (B∥/|B| − 1)·(E(|B|) − E(0)).
+      Eigen::VectorXcd z = Eigen::VectorXcd::Zero(A.dim);
+      for (int k = 0; k < int(E.size()); ++k) z(k) = E[k] - A.zero_field[k];
+      const double B = s.config.field.field_G.norm();
+      m.hamiltonian.add(Coefficient::of_time([view, B](double t) { return Complex(view.field_along_axis_G(t) / B - 1.0); }),
+                        Operator::local(id, z.asDiagonal().toDenseMatrix()));
+    }
+    // Resonator coupling g(t) Σ_i (a_i† Σ_q w_iq A_q + h.c.) — written as the atom-raising part
+    // g(t) Σ_q w_iq A_q† a_i plus its conjugate.
+    if (has_res) {
+      const auto& w = view.mode_weights();
+      for (int i = 0; i < 2; ++i) {
+        LocalMatrix up = LocalMatrix::Zero(A.dim, A.dim);
+        for (int q = 0; q < 3; ++q) up += w[i][q] * A.coupling[q].adjoint();
+        if (up.norm() == 0.0) continue;
+        Coefficient c = fixed ? Coefficient::scalar(view.resonator_coupling(start_us))
+                              : Coefficient::of_time([view](double t) { return view.resonator_coupling(t); });
+        m.hamiltonian.add_hermitian(c, Operator::product({{space::SubsystemId(i), a[i]}, {id, up}}));
+      }
+    }
+    // Side drives (Ω_j(t)/2) e^{−iδ_j t} Σ_q w_jq A_q† + h.c., δ_j = Δ_j − k_j·v − Δ_frame.
+    for (int j = 0; j < n_side; ++j) {
+      LocalMatrix up = LocalMatrix::Zero(A.dim, A.dim);
+      for (int q = 0; q < 3; ++q) up += view.drive_weights(j)[q] * A.coupling[q].adjoint();
+      if (up.norm() == 0.0) continue;
+      const double delta = view.drive_detuning_rad_per_us(j) - frame;
+      Coefficient c;
+      if (fixed && delta == 0.0) {
+        c = Coefficient::of_control(j, 0.5 * view.drive_rabi_rad_per_us(j, start_us));
+      } else if (delta == 0.0) {
+        c = Coefficient::of_control(j, 0.5, [view, j](double t) { return Complex(view.drive_rabi_rad_per_us(j, t)); });
+      } else {
+        c = Coefficient::of_control(j, 0.5, [view, j, delta](double t) {
+          return view.drive_rabi_rad_per_us(j, t) * std::exp(Complex(0.0, -delta * t));
+        });
+      }
+      m.hamiltonian.add_hermitian(c, Operator::local(id, up));
+    }
+    // Decay: free-space channels (detected + undetected) or all undetected; loss to levels
+    // outside the model into the 'lost' state.
+    LocalMatrix decay = LocalMatrix::Zero(A.dim, A.dim);
+    for (int q = 0; q < 3; ++q) decay += A.lowering[q].adjoint() * A.lowering[q];
+    m.physical_decay += Operator::local(id, decay, gamma);
+    const std::string who = atom_label(ca.arrival);
+    if (!s.free_space_channels.empty()) {
+      for (const auto& ch : s.free_space_channels) {
+        LocalMatrix C = LocalMatrix::Zero(A.dim, A.dim);
+        for (int q = 0; q < 3; ++q) C += ch.coefficients(q) * A.lowering[q];
+        if (ch.detected)
+          add_channel(ch.channel, true, Operator::local(id, C));
+        else
+          add_channel(who + " " + ch.channel, false, Operator::local(id, C));
+      }
+    } else {
+      for (int q = 0; q < 3; ++q)
+        if (A.lowering[q].norm() > 0.0)
+          add_channel(who + " free space q=" + std::to_string(q - 1), false,
+                      Operator::local(id, A.lowering[q], std::sqrt(gamma)));
+    }
+    if (A.has_lost) {
+      const int lost = A.dim - 1;
+      for (int k = 0; k < lost; ++k) {
+        if (A.loss[k] <= 0.0) continue;
+        LocalMatrix P = LocalMatrix::Zero(A.dim, A.dim);
+        P(k, k) = 1.0;
+        m.physical_decay += Operator::local(id, P, gamma * A.loss[k]);
+        LocalMatrix J = LocalMatrix::Zero(A.dim, A.dim);
+        J(lost, k) = 1.0;
+        add_channel(who + " loss", false, Operator::local(id, J, std::sqrt(gamma * A.loss[k])));
+      }
+    }
+  }
+
+  // Feedback rules as a jump hook (hold-off per rule, per trajectory).
+  if (!s.config.feedback.empty()) {
+    struct Rule {
+      int trigger = -1, control = 0;
+      double latency_us, duration_us, holdoff_us, level;
+    };
+    std::vector<Rule> rules;
+    const auto side_names = [&] {
+      std::vector<std::string> v;
+      for (const auto& d : s.config.side_drives) v.push_back(d.name);
+      for (const auto& d : s.config.resonator_drives) v.push_back(d.name);
+      return v;
+    }();
+    for (const auto& r : s.config.feedback) {
+      Rule x;
+      x.trigger = det_index.at(r.trigger_channel);
+      x.control = int(std::find(side_names.begin(), side_names.end(), r.drive) - side_names.begin());
+      x.latency_us = r.latency_ns * 1e-3;
+      x.duration_us = r.duration_ns * 1e-3;
+      x.holdoff_us = r.holdoff_ns * 1e-3;
+      x.level = r.level;
+      rules.push_back(x);
+    }
+    std::vector<int> ch_of = channel_of;
+    std::vector<double> hold(rules.size(), -std::numeric_limits<double>::infinity());
+    m.on_jump = [rules, ch_of, hold](const trajectory::JumpInfo& j, trajectory::Schedule& sch) mutable {
+      const int det = ch_of[std::size_t(j.channel)];
+      if (det < 0) return;
+      for (std::size_t k = 0; k < rules.size(); ++k) {
+        const Rule& r = rules[k];
+        if (r.trigger != det || j.time_us < hold[k]) continue;
+        sch.add(j.time_us + r.latency_us, trajectory::SetControl{r.control, r.level});
+        sch.add(j.time_us + r.latency_us + r.duration_us, trajectory::SetControl{r.control, 1.0});
+        hold[k] = j.time_us + r.holdoff_us;
+      }
+    };
+  }
+  return m;
+}
+}  // namespace
+
+// ---------------------------------------------------------------------------------------------
+
+namespace {
+
+struct Task {
+  std::vector<ClusterAtom> atoms;
+  double start_us = 0, end_us = 0;
+  std::uint64_t stream = 0;
+};
+
+struct TaskResult {
+  std::vector<detectors::Photon> photons;
+  long jumps = 0, steps = 0;
+  double top_fock = 0.0;
+  bool ok = true;
+  std::string message;
+  std::vector<std::string> warnings;
+};
+
+std::int64_t to_ps(double t_us) { return std::llround(t_us * 1e6); }
+
+}  // namespace
+
+Summary simulate(const config::CheckedScenario& s, const Options& o) {
+  const auto wall0 = std::chrono::steady_clock::now();
+  Summary sum;
+  sum.seed = o.seed.value_or(s.config.run.seed);
+  sum.duration_s = o.duration_s.value_or(s.config.run.duration_s);
+  if (!(sum.duration_s > 0.0) || !std::isfinite(sum.duration_s))
+    throw InputError("--duration-s must be a positive number of seconds");
+  if (sum.duration_s > 1e5) throw InputError("--duration-s is larger than 1e5 s");
+  sum.threads = o.threads > 0 ? o.threads : ensemble::omp_default_threads();
+  const double D = sum.duration_s * 1e6;  // µs
+  const double frame = frame_detuning_rad_per_us(s);
+  {
+    std::ostringstream f;
+    f << "fields rotate at the reference transition + " << frame / kTwoPi << " MHz ("
+      << (!s.config.resonator_drives.empty() ? "first resonator drive"
+          : !s.config.side_drives.empty()    ? "first side drive"
+                                             : "reference transition")
+      << ")";
+    sum.frame_description = f.str();
+  }
+
+  // Atoms of the run and their clusters.
+  std::vector<source::Arrival> arrivals;
+  if (s.config.source.kind == config::SourceKind::kBeam) {
+    source::BeamArrivals beam(s.config.source.beam, *s.arrival_rate_per_us, s.interaction_elements,
+                              s.ground_populations, sum.seed,
+                              {s.config.run.arrival_block_us, s.config.run.interaction_cutoff});
+    arrivals = beam.window(0.0, D);
+  } else {
+    arrivals = source::stationary_arrivals(s.config.source.positions_um, s.ground_populations, sum.seed, D);
+  }
+  std::vector<std::optional<source::Interval>> intervals;
+  for (auto& a : arrivals) {
+    if (a.interval) {
+      if (!std::isfinite(a.interval->begin_us)) a.interval->begin_us = 0.0;
+      if (!std::isfinite(a.interval->end_us)) a.interval->end_us = D;
+      if (a.interval->begin_us >= D || a.interval->end_us <= 0.0) a.interval.reset();
+    }
+    intervals.push_back(a.interval);
+    if (a.interval) ++sum.atoms;
+  }
+  const auto clusters = source::make_clusters(intervals);
+  sum.clusters = clusters.size();
+
+  const long long cap = s.config.run.max_cluster_dimension;
+  const AtomMatrices AM = atom_matrices(s);
+  const double mode_dim = s.resonator ? std::pow(double(s.resonator->fock_cutoff + 1), 2) : 1.0;
+  std::vector<Task> tasks;
+  for (const auto& c : clusters) {
+    const int k = source::max_simultaneous(c);
+    sum.max_simultaneous_atoms = std::max(sum.max_simultaneous_atoms, k);
+    const double dim = mode_dim * std::pow(double(AM.dim), k);
+    const double t0 = c.span.begin_us, t1 = std::min(c.span.end_us, D);
+    if (dim <= double(cap) || k <= 1) {
+      Task t;
+      t.start_us = t0;
+      t.end_us = t1;
+      for (const auto& mbr : c.members) t.atoms.push_back({arrivals[mbr.atom], mbr.interval});
+      t.stream = arrivals[c.members.front().atom].id;
+      tasks.push_back(std::move(t));
+    } else {
+      // Fallback: every atom alone with the resonator modes over its own interval.
+      ++sum.fallback_clusters;
+      for (const auto& mbr : c.members) {
+        Task t;
+        t.start_us = mbr.interval.begin_us;
+        t.end_us = std::min(mbr.interval.end_us, D);
+        t.atoms.push_back({arrivals[mbr.atom], mbr.interval});
+        t.stream = kFallbackBit | arrivals[mbr.atom].id;
+        tasks.push_back(std::move(t));
+      }
+    }
+  }
+  if (sum.fallback_clusters > 0)
+    sum.warnings.push_back(std::to_string(sum.fallback_clusters) +
+                           " cluster(s) above run.max_cluster_dimension_count were simulated as independent "
+                           "single-atom sub-clusters (no collective effects between their atoms)");
+  sum.trajectories = tasks.size();
+
+  trajectory::Options topt;
+  topt.rtol = s.config.run.relative_tolerance;
+  topt.atol = std::min(1e-8, topt.rtol * 1e-2);
+  topt.fock_cutoff_setting = "resonator.fock_cutoff_count";
+
+  std::mutex progress_mutex;
+  std::atomic<std::size_t> done{0};
+  const std::size_t total = tasks.size();
+  auto results = ensemble::map_ordered<TaskResult>(total, o.threads, [&](std::size_t i, trajectory::Workspace& ws) {
+    const Task& t = tasks[i];
+    TaskResult r;
+    if (t.end_us > t.start_us) {
+      std::vector<int> channel_of;
+      trajectory::Model model = build_model(s, AM, t.atoms, t.start_us, t.end_us, channel_of);
+      trajectory::Integrator integ(model, topt);
+      Rng rng = make_stream(sum.seed, StreamPurpose::kTrajectory, t.stream);
+      const auto tr = integ.run(rng, ws);
+      r.jumps = tr.summary.jumps;
+      r.steps = tr.summary.steps();
+      r.top_fock = tr.summary.top_fock_population_max;
+      r.ok = tr.summary.ok();
+      r.message = tr.summary.message;
+      r.warnings = tr.summary.warnings;
+      for (const auto& j : tr.jumps) {
+        const int det = channel_of[std::size_t(j.channel)];
+        if (det < 0 || j.time_us < 0.0 || j.time_us >= D) continue;
+        r.photons.push_back({to_ps(j.time_us), std::uint32_t(det)});
+      }
+    }
+    const std::size_t n = ++done;
+    if (o.progress) {
+      std::lock_guard<std::mutex> lock(progress_mutex);
+      o.progress(n, total);
+    }
+    return r;
+  });
+
+  // Merge in time order (ties by task index, then emission order: deterministic).
+  std::vector<detectors::Photon> photons;
+  for (auto& r : results) {
+    sum.jumps += r.jumps;
+    sum.steps += r.steps;
+    sum.top_fock_population_max = std::max(sum.top_fock_population_max, r.top_fock);
+    if (!r.ok && sum.ok) {
+      sum.ok = false;
+      sum.message = r.message;
+    }
+    for (auto& w : r.warnings)
+      if (std::find(sum.warnings.begin(), sum.warnings.end(), w) == sum.warnings.end()) sum.warnings.push_back(w);
+    photons.insert(photons.end(), r.photons.begin(), r.photons.end());
+  }
+
+  // Empty intervals with a driven resonator: a coherent state stays coherent under the
+  // no-jump evolution and under a jump of a (it is an eigenstate of a), so each output channel
+  // clicks as an independent Poisson process of rate |c·α|² — generated directly, once.
+  const auto rates = empty_resonator_rates_per_us(s);
+  double rate_total = 0.0;
+  for (double r : rates) rate_total += r;
+  if (rate_total > 0.0) {
+    std::vector<std::pair<double, double>> gaps;
+    double t = 0.0;
+    for (const auto& c : clusters) {
+      if (c.span.begin_us > t) gaps.push_back({t, std::min(c.span.begin_us, D)});
+      t = std::max(t, c.span.end_us);
+      if (t >= D) break;
+    }
+    if (t < D) gaps.push_back({t, D});
+    for (std::size_t g = 0; g < gaps.size(); ++g) {
+      Rng rng = make_stream(sum.seed, StreamPurpose::kTrajectory, kEmptyBit | g);
+      double x = gaps[g].first;
+      while (true) {
+        x += -std::log(uniform_open0(rng)) / rate_total;
+        if (x >= gaps[g].second) break;
+        double u = uniform_open0(rng) * rate_total;
+        std::size_t c = 0;
+        while (c + 1 < rates.size() && (u > rates[c] || rates[c] == 0.0)) u -= rates[c++];
+        photons.push_back({to_ps(x), std::uint32_t(c)});
+        ++sum.empty_interval_photons;
+      }
+    }
+  }
+  std::stable_sort(photons.begin(), photons.end(),
+                   [](const detectors::Photon& p, const detectors::Photon& q) { return p.time_ps < q.time_ps; });
+
+  // Detector chain and record.
+  // One detector channel per [[channel]] in file order (models/detectors/detector_config.h);
+  // channels that trigger a feedback rule are heralds.
+  detectors::DetectorChainOptions dopt = detectors::detector_chain_options(s.config);
+  std::set<std::string> heralds;
+  for (const auto& r : s.config.feedback) heralds.insert(r.trigger_channel);
+  for (auto& d : dopt.channels)
+    if (heralds.count(d.channel.name)) d.channel.role = records::ChannelRole::kHerald;
+  const std::int64_t end_ps = to_ps(D);
+  detectors::DetectorChain chain(dopt, sum.seed, 0, end_ps);
+  records::RecordHeader header;
+  header.channels = chain.record_channels();
+  header.resolution_ps = s.config.run.tagger_resolution_ps;
+  header.start_ps = 0;
+  header.duration_ps = end_ps;
+  header.provenance = records::current_record_provenance("simulation", s.config.text, sum.seed);
+  records::RecordWriter writer(o.output_path, header);
+  records::TagBlock block;
+  constexpr std::size_t kChunk = 1 << 16;
+  for (std::size_t i = 0; i < photons.size(); i += kChunk) {
+    const std::size_t n = std::min(kChunk, photons.size() - i);
+    chain.push(std::span<const detectors::Photon>(photons.data() + i, n), block);
+    writer.append(block);
+    block.clear();
+  }
+  chain.finish(block);
+  writer.append(block);
+  writer.commit();
+
+  const auto& cs = chain.summary();
+  for (std::size_t c = 0; c < s.config.detectors.size(); ++c)
+    sum.channels.push_back({s.config.detectors[c].channel, cs.channels[c].photons, cs.channels[c].recorded});
+  sum.wall_time_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - wall0).count();
+  return sum;
+}
+
+std::string Summary::brief_report() const {
+  std::ostringstream os;
+  os << (ok ? "simulated " : "simulation stopped early: ") << duration_s << " s lab time in " << wall_time_s
+     << " s wall (" << threads << " thread(s)): " << atoms << " atoms, " << clusters << " clusters ("
+     << fallback_clusters << " fallback), " << jumps << " jumps";
+  for (const auto& c : channels) os << ", " << c.name << " " << c.recorded;
+  os << " tags";
+  return os.str();
+}
+
+std::string Summary::full_report() const {
+  std::ostringstream os;
+  os << brief_report() << "\n";
+  if (!ok) os << "  error: " << message << "\n";
+  os << "  seed " << seed << "; " << frame_description << "\n";
+  os << "  trajectories " << trajectories << ", most atoms together " << max_simultaneous_atoms << ", steps "
+     << steps << ", empty-resonator photons " << empty_interval_photons << "\n";
+  os << "  top-Fock population (max) " << top_fock_population_max << "\n";
+  for (const auto& c : channels)
+    os << "  channel " << c.name << ": " << c.photons << " photons at the detector, " << c.recorded
+       << " tags recorded (" << double(c.recorded) / duration_s << " /s)\n";
+  const double core_s = wall_time_s * threads;
+  if (core_s > 0) os << "  lab seconds per core-second " << duration_s / core_s << "\n";
+  for (const auto& w : warnings) os << "  warning: " << w << "\n";
+  return os.str();
+}
+
+std::string Summary::to_json() const {
+  nlohmann::json j;
+  j["ok"] = ok;
+  j["message"] = message;
+  j["seed"] = seed;
+  j["duration_s"] = duration_s;
+  j["atoms_count"] = atoms;
+  j["clusters_count"] = clusters;
+  j["fallback_clusters_count"] = fallback_clusters;
+  j["trajectories_count"] = trajectories;
+  j["max_simultaneous_atoms_count"] = max_simultaneous_atoms;
+  j["jumps_count"] = jumps;
+  j["steps_count"] = steps;
+  j["empty_interval_photons_count"] = empty_interval_photons;
+  j["top_fock_population_fraction"] = top_fock_population_max;
+  j["frame"] = frame_description;
+  j["wall_time_s"] = wall_time_s;
+  j["threads_count"] = threads;
+  j["warnings"] = warnings;
+  auto& ch = j["channels"] = nlohmann::json::array();
+  for (const auto& c : channels)
+    ch.push_back({{"name", c.name}, {"photons_count", c.photons}, {"recorded_count", c.recorded},
+                  {"rate_per_s", double(c.recorded) / duration_s}});
+  return j.dump(2, ' ', false, nlohmann::json::error_handler_t::replace);
+}
+
+}  // namespace flyby::simulation

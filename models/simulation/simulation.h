@@ -1,0 +1,99 @@
+// `flyby simulate`: assembles a checked scenario into engine trajectories (one per interaction
+// cluster), runs them in parallel, adds the empty-resonator light between clusters, sends the
+// merged photon stream through the detector chain and writes a time-tag record. docs/simulate.md
+// describes what a run does; this header is the contract.
+//
+// Reproducibility: cluster trajectories draw from make_stream(seed, kTrajectory, id of the first
+// atom of the cluster) (fallback sub-clusters: 2⁶³ | atom id; empty intervals: 2⁶² | interval
+// index), the detector chain from make_stream(seed, kDetector, 8c + k); results are merged by
+// index, so the record is bit-identical for any thread count.
+#pragma once
+
+#include <cstdint>
+#include <functional>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "engine/trajectory/model.h"
+#include "models/config/scenario_config.h"
+#include "models/detectors/detector_chain.h"
+
+namespace flyby::simulation {
+
+struct Options {
+  // Output record path (written atomically: temporary name, renamed when complete).
+  std::string output_path;
+  // Lab time simulated, s, > 0; unset = run.duration_s of the config.
+  std::optional<double> duration_s;
+  // Master seed; unset = run.seed_id of the config.
+  std::optional<std::uint64_t> seed;
+  // OpenMP threads for the cluster trajectories; 0 = OpenMP default. Never changes the result.
+  int threads = 0;
+  // Called now and then with (clusters done, clusters total); from any thread, serialized.
+  std::function<void(std::size_t, std::size_t)> progress;
+};
+
+struct ChannelSummary {
+  std::string name;
+  std::uint64_t photons = 0;        // photons that reached the detector (from the trajectories and empty intervals)
+  std::uint64_t recorded = 0;       // tags written (incl. dark counts and afterpulses)
+};
+
+struct Summary {
+  bool ok = true;                   // false: some trajectory stopped early (message says why)
+  std::string message;
+  std::uint64_t seed = 0;
+  double duration_s = 0.0;
+  std::size_t atoms = 0;            // atoms that interact during the run
+  std::size_t clusters = 0;         // interaction clusters (joint trajectories planned)
+  std::size_t fallback_clusters = 0;  // clusters above the dimension cap, run as single-atom sub-clusters
+  std::size_t trajectories = 0;     // trajectories actually integrated
+  int max_simultaneous_atoms = 0;   // most atoms in one joint trajectory at one time
+  long jumps = 0;                   // quantum jumps of all trajectories (detected and undetected)
+  long steps = 0;                   // integrator steps (adaptive + exact evaluations)
+  std::uint64_t empty_interval_photons = 0;  // Poisson photons of the driven empty resonator
+  double top_fock_population_max = 0.0;
+  std::vector<std::string> warnings;  // distinct warnings of the trajectories (Fock, model approximations)
+  std::vector<ChannelSummary> channels;
+  std::string frame_description;    // the rotating frame chosen (see docs/simulate.md)
+  double wall_time_s = 0.0;
+  int threads = 1;
+
+  std::string brief_report() const;
+  std::string full_report() const;
+  std::string to_json() const;      // machine-readable (units in the field names)
+};
+
+// Runs the whole simulation and writes the record. Throws flyby::InputError on bad input
+// (nothing is left under the output name).
+Summary simulate(const config::CheckedScenario& scenario, const Options& options);
+
+// --- pieces exposed for tests -------------------------------------------------------------
+
+// Detuning (rad/µs, from the reference transition) of the frame every field is written in: the
+// first resonator drive if there is one, else the first side drive, else 0 (resonator/reference).
+double frame_detuning_rad_per_us(const config::CheckedScenario& scenario);
+
+// Steady coherent amplitudes α_i of the two resonator modes driven by the resonator drives with
+// no atom, in the frame of frame_detuning_rad_per_us at time t_us. Each drive d contributes
+// −i E_d e^{−iδ_d t}/(κ + i(ω_i − ω_d)), δ_d = Δ_d − Δ_frame (exact for one drive frequency).
+std::array<std::complex<double>, 2> empty_resonator_amplitudes(const config::CheckedScenario& scenario, double t_us,
+                                                               const std::vector<double>& drive_levels = {});
+
+// Photon rate per µs of each detected resonator channel (index into config.detectors order; 0
+// for free-space channels) of the empty driven resonator: |Σ_i c_i α_i|².
+std::vector<double> empty_resonator_rates_per_us(const config::CheckedScenario& scenario);
+
+struct ClusterAtom {
+  source::Arrival arrival;
+  source::Interval interval;
+};
+
+// The engine model of one cluster over [start_us, end_us): modes (if any), atoms attached at
+// entry and detached at exit, Hamiltonian, channels, feedback hook. `channel_of[k]` gets, for
+// engine channel k, the detector channel index or −1 when undetected.
+trajectory::Model build_cluster_model(const config::CheckedScenario& scenario, const std::vector<ClusterAtom>& atoms,
+                                      double start_us, double end_us, std::vector<int>& channel_of);
+
+}  // namespace flyby::simulation
