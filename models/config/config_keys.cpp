@@ -311,7 +311,10 @@ std::pair<std::string, std::string> split(std::string_view path) {
 }  // namespace
 
 std::optional<std::string> nearest_key(std::string_view path) {
-  const auto [section, name] = split(path);
+  // Named members rather than a structured binding: clang 14 cannot capture bindings in lambdas.
+  const auto parts = split(path);
+  const std::string& section = parts.first;
+  const std::string& name = parts.second;
   std::optional<std::string> best;
   std::size_t best_d = std::string::npos;
   auto consider = [&](const std::string& candidate, const std::string& candidate_name) {
