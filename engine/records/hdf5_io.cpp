@@ -57,20 +57,33 @@ void check_single(hid_t attr, const std::string& where) {
   if (n != 1) fail(where + ": expected a single value, found " + std::to_string(n));
 }
 
-template <class T>
-std::optional<T> read_attr_num(hid_t loc, const char* name, const std::string& where, Kind kind, hid_t mem_type) {
+// An attribute that exists, opened, with its type checked against `kind` and its shape checked to
+// be a single value; `where` names it in error messages. nullopt when the attribute is absent.
+struct CheckedAttr {
+  Handle attr;
+  Handle type;
+  std::string where;
+};
+
+std::optional<CheckedAttr> open_checked_attr(hid_t loc, const char* name, const std::string& where, Kind kind) {
   const htri_t ex = H5Aexists(loc, name);
   if (ex < 0) fail(where + ": cannot query attribute '" + name + "'");
   if (ex == 0) return std::nullopt;
-  const std::string w = where + " attribute '" + name + "'";
-  Handle attr(H5Aopen(loc, name, H5P_DEFAULT));
-  if (!attr.valid()) fail(w + ": cannot open");
-  Handle type(H5Aget_type(attr.get()));
-  if (!type.valid()) fail(w + ": unreadable type");
-  if (auto m = type_mismatch(type.get(), kind)) fail(w + " must be " + kind_name(kind) + ", found " + *m);
-  check_single(attr.get(), w);
+  CheckedAttr a{Handle(H5Aopen(loc, name, H5P_DEFAULT)), Handle(), where + " attribute '" + name + "'"};
+  if (!a.attr.valid()) fail(a.where + ": cannot open");
+  a.type = Handle(H5Aget_type(a.attr.get()));
+  if (!a.type.valid()) fail(a.where + ": unreadable type");
+  if (auto m = type_mismatch(a.type.get(), kind)) fail(a.where + " must be " + kind_name(kind) + ", found " + *m);
+  check_single(a.attr.get(), a.where);
+  return a;
+}
+
+template <class T>
+std::optional<T> read_attr_num(hid_t loc, const char* name, const std::string& where, Kind kind, hid_t mem_type) {
+  auto a = open_checked_attr(loc, name, where, kind);
+  if (!a) return std::nullopt;
   T value{};
-  if (H5Aread(attr.get(), mem_type, &value) < 0) fail(w + ": cannot read value");
+  if (H5Aread(a->attr.get(), mem_type, &value) < 0) fail(a->where + ": cannot read value");
   return value;
 }
 
@@ -182,16 +195,11 @@ void write_dataset(hid_t loc, const char* name, const std::vector<std::string>& 
 }
 
 std::optional<std::string> read_attr_string(hid_t loc, const char* name, const std::string& where) {
-  const htri_t ex = H5Aexists(loc, name);
-  if (ex < 0) fail(where + ": cannot query attribute '" + name + "'");
-  if (ex == 0) return std::nullopt;
-  const std::string w = where + " attribute '" + name + "'";
-  Handle attr(H5Aopen(loc, name, H5P_DEFAULT));
-  if (!attr.valid()) fail(w + ": cannot open");
-  Handle type(H5Aget_type(attr.get()));
-  if (!type.valid()) fail(w + ": unreadable type");
-  if (auto m = type_mismatch(type.get(), Kind::kString)) fail(w + " must be a string, found " + *m);
-  check_single(attr.get(), w);
+  auto a = open_checked_attr(loc, name, where, Kind::kString);
+  if (!a) return std::nullopt;
+  const Handle& attr = a->attr;
+  const Handle& type = a->type;
+  const std::string& w = a->where;
   const htri_t vlen = H5Tis_variable_str(type.get());
   if (vlen < 0) fail(w + ": unreadable string type");
   if (vlen > 0) {
