@@ -13,9 +13,16 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-rows = list(csv.DictReader(open(sys.argv[1])))
-figdir = sys.argv[2]
 f = lambda r, k: float(r[k])
+# Points whose fitted beat amplitude is not resolved (standard error ≥ value: the fit did not
+# find the beat) are left out of the figures and listed.
+rows = []
+for r in csv.DictReader(open(sys.argv[1])):
+    if not abs(f(r, "amplitude_err")) < abs(f(r, "amplitude")):
+        print("unresolved beat, left out:", r["transit_us"], "us,", r["mean_atoms_count"], "atoms")
+        continue
+    rows.append(r)
+figdir = sys.argv[2]
 transits = sorted({f(r, "transit_us") for r in rows})
 atoms = sorted({f(r, "mean_atoms_count") for r in rows})
 
