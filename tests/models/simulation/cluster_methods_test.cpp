@@ -10,6 +10,7 @@
 #include "engine/records/record_reader.h"
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
+#include "tests/engine/engine_test_models.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
@@ -118,7 +119,7 @@ TEST_CASE("joint clusters, exact and truncated, give the N-atom weak-drive trans
   for (Case c : {Case{1, "", M::kExact}, Case{2, "", M::kExact}, Case{2, "max_excitation_count = 2\n", M::kTruncated},
                  Case{3, "max_excitation_count = 2\n", M::kTruncated}}) {
     // The exact two-atom cluster (144 states, exact exponentials) costs ≈ 25× the truncated one.
-    const double D = c.method == M::kExact ? (c.atoms == 1 ? 0.05 : 0.03) : 0.1;
+    const double D = flyby::test::test_scale() * (c.method == M::kExact ? (c.atoms == 1 ? 0.05 : 0.03) : 0.1);
     const Rate r = measure("atoms-joint-" + std::to_string(c.atoms) + (c.extra[0] ? "-truncated" : "-exact"), c.atoms, D,
                            c.extra);
     INFO(r.summary.full_report());
@@ -144,7 +145,7 @@ TEST_CASE("independent-atom approximation: its error against the exact N = 2 tra
   // [1 + 2·2C1]⁻² — with a resonator drive the approximation fails by this known factor
   // 2(1 + 4C1)²/(1 + 2C1)² = 4.5 here; the test pins that error (validity condition in
   // docs/simulate.md: no resonator drive and N C1 ≪ 1).
-  const Rate r = measure("atoms-independent", 2, 0.05, "max_cluster_dimension_count = 1\n");
+  const Rate r = measure("atoms-independent", 2, flyby::test::test_scale() * 0.05, "max_cluster_dimension_count = 1\n");
   INFO(r.summary.full_report());
   REQUIRE(r.summary.ok);
   CHECK(r.summary.fallback_clusters == 1u);
