@@ -21,6 +21,7 @@ std::optional<std::string> RecordAnalysisOptions::validate() const {
   if (slices < 2) return "--slices must be >= 2";
   if (!(significance_sigma > 0)) return "--significance must be > 0";
   if (block_tags < 1) return "--block-tags must be >= 1";
+  if (jackknife_blocks == 1 || jackknife_blocks < 0) return "--jackknife-blocks must be 0 (off) or >= 2";
   return std::nullopt;
 }
 
@@ -63,8 +64,11 @@ int index_of(const G2FitResult& r, const std::string& name) {
 }
 
 Estimate param(const G2FitResult& r, int i) {
-  return {r.fit.parameters[static_cast<std::size_t>(i)], r.fit.standard_errors[static_cast<std::size_t>(i)]};
+  const double e = r.fit.standard_errors[static_cast<std::size_t>(i)];
+  return {r.fit.parameters[static_cast<std::size_t>(i)], e, e, 0};
 }
+
+Estimate with_error(double value, double err) { return {value, err, err, 0}; }
 
 bool finite_fit(const G2FitResult& r) {
   for (std::size_t i = 0; i < r.fit.parameters.size(); ++i)
@@ -96,7 +100,7 @@ std::optional<std::string> weak_term(const G2FitResult& r, double nsigma, double
   return std::nullopt;
 }
 
-void interpret(PairAnalysis& p, const RecordAnalysis& a, const config::CheckedScenario* s, const RecordAnalysisOptions& o) {
+void interpret(PairAnalysis& p) {
   const auto& r = *p.fit;
   const int level_i = index_of(r, "level");
   if (int i = index_of(r, "beat.freq_MHz"); i >= 0) {
@@ -107,9 +111,7 @@ void interpret(PairAnalysis& p, const RecordAnalysis& a, const config::CheckedSc
     const double A = r.fit.parameters[static_cast<std::size_t>(ai)], c = r.fit.parameters[static_cast<std::size_t>(level_i)];
     const auto& C = r.fit.covariance;
     const double var = C(ai, ai) / (c * c) + A * A * C(level_i, level_i) / (c * c * c * c) - 2 * A * C(ai, level_i) / (c * c * c);
-    p.beat_contrast = Estimate{A / c, std::sqrt(std::max(0.0, var))};
-    p.delta_m = heralded_delta_m(s, p.start_name, o.delta_m);
-    if (a.ground) p.field = field_from_beat(p.beat_MHz->value, p.beat_MHz->std_error, a.ground->gF, p.delta_m->value);
+    p.beat_contrast = with_error(A / c, std::sqrt(std::max(0.0, var)));
   }
   if (int i = index_of(r, "transit_gauss.amplitude"); i >= 0) {
     p.transit_us = param(r, index_of(r, "transit_gauss.transit_us"));
@@ -117,7 +119,65 @@ void interpret(PairAnalysis& p, const RecordAnalysis& a, const config::CheckedSc
     const double A = r.fit.parameters[static_cast<std::size_t>(i)], c = r.fit.parameters[static_cast<std::size_t>(level_i)];
     const auto& C = r.fit.covariance;
     const double var = C(level_i, level_i) / (A * A) + c * c * C(i, i) / (A * A * A * A) - 2 * c * C(i, level_i) / (A * A * A);
-    p.atoms_effective = Estimate{c / A, std::sqrt(std::max(0.0, var))};
+    p.atoms_effective = with_error(c / A, std::sqrt(std::max(0.0, var)));
+  }
+}
+
+// Delete-one-block jackknife (Quenouille–Tukey; e.g. B. Efron, "The Jackknife, the Bootstrap and
+// Other Resampling Plans" (1982)): refit the histogram without the starts of block b, θ_b; then
+// σ² = (B − 1)/B Σ (θ_b − θ̄)². Each estimate's std_error becomes max(fit σ, jackknife σ).
+void jackknife(PairAnalysis& p, const std::vector<CorrelationHistogram>& blocks, const RecordAnalysisOptions& o) {
+  const auto& full = p.histogram;
+  const auto& r = *p.fit;
+  std::vector<std::vector<double>> values(5);  // f, decay, contrast, N_eff, τ_t
+  for (const auto& b : blocks) {
+    const std::uint64_t n_start = full.n_start_used - b.n_start_used;
+    if (n_start == 0 || b.counts.size() != full.counts.size()) {
+      p.jackknife_message = "jackknife: a block holds every start";
+      return;
+    }
+    const double E = static_cast<double>(n_start) * static_cast<double>(full.n_stop) *
+                     static_cast<double>(full.options.bin_width_ps) / static_cast<double>(full.duration_ps);
+    G2Data d;
+    for (std::size_t k = 0; k < full.counts.size(); ++k) {
+      const double n = static_cast<double>(full.counts[k] - b.counts[k]);
+      d.tau_us.push_back(static_cast<double>(full.tau_ps[k]) * 1e-6);
+      d.g2.push_back(n / E);
+      d.g2_err.push_back(std::sqrt(n) / E);
+    }
+    G2FitOptions fo;
+    fo.model = r.model.spec;
+    fo.tau_min_us = o.tau_min_ns * 1e-3;
+    fo.start = r.fit.parameters;
+    PairAnalysis q;
+    try {
+      q.fit = fit_g2(d, fo);
+    } catch (const InputError& e) {
+      p.jackknife_message = std::string("jackknife: ") + e.what();
+      return;
+    }
+    if (!q.fit->fit.ok() || !finite_fit(*q.fit)) {
+      p.jackknife_message = std::string("jackknife: a block refit did not converge (") + to_string(q.fit->fit.status) + ")";
+      return;
+    }
+    interpret(q);
+    const std::optional<Estimate>* est[5] = {&q.beat_MHz, &q.beat_decay_us, &q.beat_contrast, &q.atoms_effective, &q.transit_us};
+    for (int i = 0; i < 5; ++i)
+      if (*est[i]) values[static_cast<std::size_t>(i)].push_back((*est[i])->value);
+  }
+  std::optional<Estimate>* est[5] = {&p.beat_MHz, &p.beat_decay_us, &p.beat_contrast, &p.atoms_effective, &p.transit_us};
+  const double B = static_cast<double>(blocks.size());
+  for (int i = 0; i < 5; ++i) {
+    auto& v = values[static_cast<std::size_t>(i)];
+    if (!*est[i] || v.size() != blocks.size()) continue;
+    double m = 0;
+    for (double x : v) m += x / B;
+    double ss = 0;
+    for (double x : v) ss += (x - m) * (x - m);
+    const double jk = std::sqrt((B - 1) / B * ss);
+    auto& e = **est[i];
+    e.jackknife_std_error = jk;
+    e.std_error = std::max(e.fit_std_error, jk);
   }
 }
 
@@ -140,6 +200,7 @@ RecordAnalysis analyze_record(const std::string& path, const RecordAnalysisOptio
   if (auto e = o.validate()) throw InputError(*e);
   RecordAnalysis a;
   a.record_path = path;
+  a.jackknife_blocks = o.jackknife_blocks;
   records::RecordReader reader(path);
   a.header = reader.header();
   const auto& h = a.header;
@@ -210,6 +271,7 @@ RecordAnalysis analyze_record(const std::string& path, const RecordAnalysisOptio
   for (const auto& c : h.channels) so.channels.push_back(c.id);
   SinglesCounter singles(so);
   std::vector<Correlator> correlators;
+  std::vector<std::vector<Correlator>> block_correlators(pairs.size());
   for (const auto& [s, t, kind] : pairs) {
     CorrelatorOptions co;
     co.start_channel = s;
@@ -219,12 +281,24 @@ RecordAnalysis analyze_record(const std::string& path, const RecordAnalysisOptio
     co.duration_ps = h.duration_ps;
     co.threads = o.threads;
     correlators.emplace_back(co);
+    auto& bc = block_correlators[correlators.size() - 1];
+    for (int b = 0; b < o.jackknife_blocks; ++b) {
+      auto cb = co;
+      cb.start_windows = {{h.start_ps + static_cast<std::int64_t>(static_cast<__int128>(h.duration_ps) * b / o.jackknife_blocks),
+                           h.start_ps + static_cast<std::int64_t>(static_cast<__int128>(h.duration_ps) * (b + 1) / o.jackknife_blocks)}};
+      bc.emplace_back(cb);
+    }
   }
   records::TagBlock block;
   while (reader.read_next(block, o.block_tags)) {
     singles.add_chunk(block.time_ps, block.channel);
     for (auto& c : correlators) c.add_chunk(block.time_ps, block.channel);
+    for (auto& bc : block_correlators)
+      for (auto& c : bc) c.add_chunk(block.time_ps, block.channel);
   }
+  std::vector<std::vector<CorrelationHistogram>> blocks(pairs.size());
+  for (std::size_t k = 0; k < pairs.size(); ++k)
+    for (auto& c : block_correlators[k]) blocks[k].push_back(c.finish());
   a.singles = singles.finish();
   if (a.singles.status != SinglesStatus::kSuccess) a.notes.push_back(a.singles.message + ".");
 
@@ -274,7 +348,15 @@ RecordAnalysis analyze_record(const std::string& path, const RecordAnalysisOptio
       }
     }
     if (!p.fit) p.fit_message = "no model fitted: " + why;
-    else interpret(p, a, scenario.get(), o);
+    else {
+      interpret(p);
+      if (o.jackknife_blocks >= 2) jackknife(p, blocks[k], o);
+      else p.jackknife_message = "jackknife off";
+      if (p.beat_MHz) {
+        p.delta_m = heralded_delta_m(scenario.get(), p.start_name, o.delta_m);
+        if (a.ground) p.field = field_from_beat(p.beat_MHz->value, p.beat_MHz->std_error, a.ground->gF, p.delta_m->value);
+      }
+    }
     a.pairs.push_back(std::move(p));
   }
 
@@ -283,7 +365,11 @@ RecordAnalysis analyze_record(const std::string& path, const RecordAnalysisOptio
     keep_best(a.beat_MHz, p.beat_MHz);
     keep_best(a.transit_us, p.transit_us);
     keep_best(a.atoms_effective, p.atoms_effective);
-    if (p.field) keep_best(a.field_G, Estimate{p.field->field_G, p.field->field_err_G});
+    if (p.field) {
+      const double k = 1 / p.field->MHz_per_G;
+      keep_best(a.field_G, Estimate{p.field->field_G, p.field->field_err_G, p.beat_MHz->fit_std_error * k,
+                                    p.beat_MHz->jackknife_std_error * k});
+    }
   }
   if (!a.ground) a.status = RecordAnalysisStatus::kPartial;
   return a;
@@ -305,7 +391,10 @@ namespace {
 
 nlohmann::ordered_json est_json(const std::optional<Estimate>& e) {
   if (!e) return nullptr;
-  return {{"value", e->value}, {"std_error", e->std_error}};
+  return {{"value", e->value},
+          {"std_error", e->std_error},
+          {"fit_std_error", e->fit_std_error},
+          {"jackknife_std_error", e->jackknife_std_error}};
 }
 
 }  // namespace
@@ -368,7 +457,10 @@ nlohmann::ordered_json RecordAnalysis::to_json() const {
     q["beat_contrast"] = est_json(p.beat_contrast);
     q["delta_m"] = p.delta_m ? nlohmann::json(p.delta_m->value) : nlohmann::json(nullptr);
     q["delta_m_reason"] = p.delta_m ? nlohmann::json(p.delta_m->reason) : nlohmann::json(nullptr);
-    q["field_G"] = p.field ? est_json(Estimate{p.field->field_G, p.field->field_err_G}) : nlohmann::ordered_json(nullptr);
+    q["field_G"] = p.field ? est_json(Estimate{p.field->field_G, p.field->field_err_G, p.beat_MHz->fit_std_error / p.field->MHz_per_G,
+                                               p.beat_MHz->jackknife_std_error / p.field->MHz_per_G})
+                           : nlohmann::ordered_json(nullptr);
+    q["jackknife_message"] = p.jackknife_message;
     q["atoms_effective_count"] = est_json(p.atoms_effective);
     q["transit_us"] = est_json(p.transit_us);
     j["pairs"].push_back(q);
@@ -434,6 +526,9 @@ std::string markdown_report(const RecordAnalysis& a, const std::vector<std::pair
   s << "* g2(τ) = counts / (N_start N_stop W / T), Poisson errors; fits by weighted nonlinear least squares "
        "(GSL) with Poisson weights from the model, on bins with τ ≥ "
     << "the fit start given below.\n";
+  s << "* Errors (1σ) are the larger of the fit's σ (independent Poisson bins) and a delete-one-block jackknife "
+       "σ over " << a.jackknife_blocks << " time blocks (refits without each block's starts): photons of one atom's "
+       "passage arrive in correlated bursts, so bins are not independent and the fit's σ alone can be too small.\n";
   s << "* B = f / (|Δm| |g_F| μB/h), linear Zeeman effect of the ground level, μB/h = 1.39962449361 MHz/G "
        "(CODATA 2018). Light shifts of the drive and the quadratic Zeeman effect are neglected.\n";
   for (const auto& p : a.pairs)
@@ -476,6 +571,20 @@ std::string markdown_report(const RecordAnalysis& a, const std::vector<std::pair
       if (p.beat_contrast) s << "Beat contrast (amplitude / level): " << pm(p.beat_contrast, "") << ". ";
       if (p.field) s << "B from this pair: " << pm(Estimate{p.field->field_G, p.field->field_err_G}, "G") << ". ";
       if (p.atoms_effective) s << "N_eff from this pair: " << pm(p.atoms_effective, "") << ". ";
+      if (p.transit_us) s << "Transit time from this pair: " << pm(p.transit_us, "µs") << ". ";
+      if (!p.jackknife_message.empty()) s << "(" << p.jackknife_message << ": fit errors only.) ";
+      else {
+        auto jk = [&](const char* name, const std::optional<Estimate>& e) {
+          if (!e) return;
+          char b2[160];
+          std::snprintf(b2, sizeof b2, "%s fit σ %.3g, jackknife σ %.3g; ", name, e->fit_std_error, e->jackknife_std_error);
+          s << b2;
+        };
+        s << "Errors: ";
+        jk("beat frequency", p.beat_MHz);
+        jk("N_eff", p.atoms_effective);
+        jk("τ_t", p.transit_us);
+      }
       s << "\n\n";
       s << figure(pair_label(p), "g2 " + p.start_name + " → " + p.stop_name + ", fit and residuals");
     }

@@ -37,6 +37,9 @@ struct RecordAnalysisOptions {
   // dead time near τ = 0 (the single-atom dynamics, a few 1/Γ). >= 0.
   double tau_min_ns = 100.0;
   int slices = 20;                // time slices of the singles drift test, >= 2
+  // Time blocks of the delete-one-block jackknife of every fitted quantity (Estimate), >= 2, or
+  // 0 for fit errors only. Blocks must be much longer than the correlation times.
+  int jackknife_blocks = 10;
   // Channel pairs "START:STOP" (names or ids); empty: from the channel roles (file comment).
   std::vector<std::string> pairs;
   // Fit model (g2_model.h spec) for every pair, or "auto": the largest of level+transit_gauss+beat,
@@ -57,9 +60,14 @@ struct RecordAnalysisOptions {
 };
 
 // A value with its standard error.
+// std_error is the larger of the fit's σ (independent Poisson bins) and the delete-one-block
+// jackknife σ over time blocks: photons of one atom's passage form correlated bursts, so pair
+// counts of different bins are not independent and the fit's σ alone can be too small.
 struct Estimate {
   double value = 0;
   double std_error = 0;
+  double fit_std_error = 0;        // from the fit covariance
+  double jackknife_std_error = 0;  // 0 if the jackknife was off or failed
 };
 
 struct PairAnalysis {
@@ -73,6 +81,7 @@ struct PairAnalysis {
   std::optional<Estimate> transit_us, atoms_effective;
   std::optional<FieldFromBeat> field;  // with g_F known and a beat found
   std::optional<DeltaM> delta_m;
+  std::string jackknife_message;    // empty if the jackknife ran; else why not
 };
 
 enum class RecordAnalysisStatus {
@@ -90,6 +99,7 @@ struct RecordAnalysis {
   std::optional<GroundLevel> ground;  // the atom's ground level, if known
   std::optional<double> configured_field_G;  // |B| of the config (simulated records)
   SinglesResult singles;
+  int jackknife_blocks = 0;           // as in the options
   std::vector<PairAnalysis> pairs;
   // Best estimates over the pairs (smallest standard error); unset if no pair gives one.
   std::optional<Estimate> field_G, beat_MHz, transit_us, atoms_effective;

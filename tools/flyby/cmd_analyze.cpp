@@ -195,6 +195,9 @@ void register_analyze(CLI::App& app) {
   c->add_option("--tau-min-ns", args->o.tau_min_ns, "fit bins with tau >= this (ns): skips the single-atom dynamics")
       ->capture_default_str();
   c->add_option("--slices", args->o.slices, "time slices for the singles drift test")->capture_default_str();
+  c->add_option("--jackknife-blocks", args->o.jackknife_blocks,
+                "time blocks of the jackknife error estimate (0: fit errors only)")
+      ->capture_default_str();
   c->add_option("--pair", args->o.pairs, "channel pair START:STOP (names or ids); repeatable; default from the roles");
   c->add_option("--model", args->o.model, "fit model for every pair (e.g. level+beat), or auto")->capture_default_str();
   c->add_option("--significance", args->o.significance_sigma, "auto model: keep a term above this many sigma")

@@ -41,12 +41,12 @@ source = "free_space"
 direction_dir = [1, 0, 0]
 polarization = "linear"
 polarization_dir = [0, 1, 0]
-solid_angle_sr = 4.0
+solid_angle_sr = 8.0
 [source]
 kind = "stationary"
 positions_um = [[0, 0, 0]]
 [run]
-duration_s = 0.15
+duration_s = 0.4
 seed_id = )" + std::to_string(seed) + "\n";
 }
 
@@ -117,7 +117,7 @@ TEST_CASE("flyby plan CONFIG prints the plan with its assumptions", "[cli][plan]
   {
     std::ofstream(d / "c.toml") << config(flyby::test::seed("cli plan config"));
   }
-  const auto r = run_flyby("plan c.toml --simulate-s 0.3 --bin-ns 10 --range-ns 3000 --target beat-freq-kHz=2 --json",
+  const auto r = run_flyby("plan c.toml --simulate-s 0.5 --bin-ns 10 --range-ns 3000 --target beat-freq-kHz=2 --json",
                            d.path().string());
   INFO(r.err);
   REQUIRE(r.status == 0);
