@@ -520,7 +520,7 @@ std::string markdown_report(const RecordAnalysis& a, const std::vector<std::pair
   s << "| effective mean atom number N_eff | " << pm(a.atoms_effective, "") << " | transit envelope (KDM 1978) |\n";
   s << "| transit time τ_t | " << pm(a.transit_us, "µs") << " | transit envelope |\n\n";
   s << "Each value is the estimate of the channel pair with the smallest standard error (pairs share data, so "
-       "they are not averaged); errors are 1σ from the fit covariance.\n\n";
+       "they are not averaged); errors are 1σ (see Assumptions).\n\n";
 
   s << "## Assumptions\n\n";
   s << "* g2(τ) = counts / (N_start N_stop W / T), Poisson errors; fits by weighted nonlinear least squares "
