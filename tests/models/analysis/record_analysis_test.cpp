@@ -167,7 +167,7 @@ const double kOneSigmaCoverage = std::erf(1 / std::sqrt(2.0));
 
 }  // namespace
 
-TEST_CASE("analysis of simulated beat runs recovers B within its errors; planned sigma_f matches the fit scatter",
+TEST_CASE("analysis of simulated beat runs recovers B within its errors, and the planned sigma_f matches the fit scatter",
           "[analyze][slow]") {
   const auto seed = flyby::test::seed("analyze beat coverage");
   ScratchDir d("analyze-beat");
