@@ -106,6 +106,10 @@ void interpret(PairAnalysis& p) {
   if (int i = index_of(r, "beat.freq_MHz"); i >= 0) {
     p.beat_MHz = param(r, i);
     p.beat_decay_us = param(r, index_of(r, "beat.decay_us"));
+  }
+  if (int i = index_of(r, "transit_gauss.transit_us"); i >= 0) p.transit_us = param(r, i);
+  if (level_i < 0) return;  // a model without a level: no contrast, no atom number
+  if (int i = index_of(r, "beat.freq_MHz"); i >= 0) {
     // Contrast A / c with first-order error propagation through the covariance.
     const int ai = index_of(r, "beat.amplitude");
     const double A = r.fit.parameters[static_cast<std::size_t>(ai)], c = r.fit.parameters[static_cast<std::size_t>(level_i)];
@@ -114,7 +118,6 @@ void interpret(PairAnalysis& p) {
     p.beat_contrast = with_error(A / c, std::sqrt(std::max(0.0, var)));
   }
   if (int i = index_of(r, "transit_gauss.amplitude"); i >= 0) {
-    p.transit_us = param(r, index_of(r, "transit_gauss.transit_us"));
     // N_eff = c / a (Kimble, Dagenais & Mandel 1978: excess = env / N on the background c).
     const double A = r.fit.parameters[static_cast<std::size_t>(i)], c = r.fit.parameters[static_cast<std::size_t>(level_i)];
     const auto& C = r.fit.covariance;

@@ -85,7 +85,7 @@ ScenarioPlan plan_from_scenario(const std::string& config_path, const ScenarioPl
   const auto a = analyze_record(tmp.string(), ao);
   const PairAnalysis* best = nullptr;
   for (const auto& p : a.pairs)
-    if (p.beat_MHz && (!best || p.beat_MHz->std_error < best->beat_MHz->std_error)) best = &p;
+    if (p.beat_MHz && p.beat_contrast && (!best || p.beat_MHz->std_error < best->beat_MHz->std_error)) best = &p;
   if (!best)
     throw InputError(config_path + ": the short simulation (" + std::to_string(sp.simulated_s) +
                      " s) shows no beat above the significance threshold in any channel pair; simulate longer "
