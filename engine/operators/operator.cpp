@@ -111,6 +111,10 @@ static void apply_factor(const LocalMatrix& m, long d, long s, const Vector& in,
 }
 
 void apply(const Operator& op, const Layout& layout, const Vector& in, Vector& out) {
+  if (layout.restricted()) {
+    out = to_sparse(op, layout) * in;
+    return;
+  }
   out.setZero(in.size());
   Vector a, b;
   for (const auto& t : op.terms()) {
@@ -150,7 +154,48 @@ static SparseMatrix factor_sparse(const LocalMatrix& m, long d, long s, long n) 
   return r;
 }
 
+SparseMatrix to_sparse_between(const Operator& op, const Layout& cols, const Layout& rows) {
+  FLYBY_CHECK(cols.present() == rows.present(), "to_sparse_between: layouts of different subsystems");
+  std::vector<Eigen::Triplet<Complex>> trip;
+  struct Factor {
+    long stride, dim;
+    std::vector<std::vector<std::pair<long, Complex>>> column;  // column b: (row a, m(a, b)) non-zero
+  };
+  for (const auto& t : op.terms()) {
+    if (!term_active(t, cols)) continue;
+    std::vector<Factor> fs;
+    for (const auto& f : t.factors) {
+      FLYBY_CHECK(f.matrix.rows() == cols.dimension_of(f.target), "local operator dimension mismatch");
+      Factor x{cols.stride_of(f.target), f.matrix.rows(), {}};
+      x.column.resize(std::size_t(x.dim));
+      for (long b = 0; b < x.dim; ++b)
+        for (long a = 0; a < x.dim; ++a)
+          if (f.matrix(a, b) != Complex(0.0)) x.column[std::size_t(b)].emplace_back(a, f.matrix(a, b));
+      fs.push_back(std::move(x));
+    }
+    for (long j = 0; j < cols.dimension(); ++j) {
+      const long full = cols.full_index(j);
+      // Every product of one non-zero entry per factor maps column `full` to one row.
+      auto visit = [&](auto&& self, std::size_t k, long row_full, Complex w) -> void {
+        if (k == fs.size()) {
+          if (auto i = rows.index_of_full(row_full)) trip.emplace_back(*i, j, w);
+          return;
+        }
+        const Factor& f = fs[k];
+        const long b = (full / f.stride) % f.dim;
+        for (const auto& [a, m] : f.column[std::size_t(b)]) self(self, k + 1, row_full + (a - b) * f.stride, w * m);
+      };
+      visit(visit, 0, full, t.weight);
+    }
+  }
+  SparseMatrix r(rows.dimension(), cols.dimension());
+  r.setFromTriplets(trip.begin(), trip.end());
+  r.prune(Complex(0.0));
+  return r;
+}
+
 SparseMatrix to_sparse(const Operator& op, const Layout& layout) {
+  if (layout.restricted()) return to_sparse_between(op, layout, layout);
   const long n = layout.dimension();
   SparseMatrix sum(n, n);
   for (const auto& t : op.terms()) {

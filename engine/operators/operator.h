@@ -60,8 +60,13 @@ class Operator {
   std::vector<ProductTerm> terms_;
 };
 
-// Full-space sparse matrix of the active terms in `layout`.
+// Full-space sparse matrix of the active terms in `layout` (on the kept states when the layout
+// is restricted by excitation number; amplitude leaving the kept states is dropped).
 SparseMatrix to_sparse(const Operator& op, const Layout& layout);
+// Matrix of the active terms from the states of `cols` to the states of `rows`: two layouts of
+// the same present subsystems, each restricted or not (e.g. kept states → the next excitation
+// shell, for the truncation error estimate). Assembled column by column from the local matrices.
+SparseMatrix to_sparse_between(const Operator& op, const Layout& cols, const Layout& rows);
 // out = O·in without forming the full matrix (local matrices act on strided slices).
 void apply(const Operator& op, const Layout& layout, const Vector& in, Vector& out);
 // ⟨ψ|O|ψ⟩ / ⟨ψ|ψ⟩.

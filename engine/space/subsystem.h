@@ -4,6 +4,7 @@
 #pragma once
 
 #include <string>
+#include <vector>
 
 namespace flyby::space {
 
@@ -20,12 +21,32 @@ struct Subsystem {
   std::string name;                         // for messages, e.g. "mode H", "atom 3"
   SubsystemKind kind = SubsystemKind::kLevels;
   int dimension = 2;                        // number of basis states, ≥ 1
+  // Excitation number of each basis state, for layouts truncated by total excitation number
+  // (layout.h). Empty: n for a mode's |n⟩, 0 for every level of a d-level system (the model sets
+  // 1 on an atom's excited sublevels). Values ≥ 0.
+  std::vector<int> excitation;
+  // Levels that can be populated (empty: all). A level marked false is pruned: the model has
+  // shown that no operator of the trajectory reaches it from the initial or attached states
+  // (e.g. trajectory::prune_unreachable_levels), so layouts leave its product states out.
+  std::vector<bool> allowed;
+
+  bool is_allowed(int level) const { return allowed.empty() || allowed[std::size_t(level)]; }
+  bool pruned() const {
+    for (bool a : allowed)
+      if (!a) return true;
+    return false;
+  }
+
+  int excitation_of(int level) const {
+    if (!excitation.empty()) return excitation[std::size_t(level)];
+    return kind == SubsystemKind::kMode ? level : 0;
+  }
 
   static Subsystem mode(std::string name, int fock_cutoff) {
-    return {std::move(name), SubsystemKind::kMode, fock_cutoff + 1};
+    return {std::move(name), SubsystemKind::kMode, fock_cutoff + 1, {}, {}};
   }
   static Subsystem levels(std::string name, int dimension) {
-    return {std::move(name), SubsystemKind::kLevels, dimension};
+    return {std::move(name), SubsystemKind::kLevels, dimension, {}, {}};
   }
 };
 

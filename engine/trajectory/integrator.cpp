@@ -12,6 +12,7 @@
 #include <sstream>
 
 #include "engine/common/errors.h"
+#include "engine/trajectory/excitation_leak.h"
 
 namespace flyby::trajectory {
 
@@ -36,6 +37,7 @@ struct Stretch {
   bool exact = false;
   Eigen::MatrixXcd v, v_inv;
   Eigen::VectorXcd lambda;
+  std::shared_ptr<const ExcitationLeak> leak;  // set when the layout is excitation-restricted
 };
 
 }  // namespace
@@ -82,6 +84,10 @@ std::string Summary::full_report() const {
     << "eigendecompositions     " << eigendecompositions << "\n"
     << "norm error estimate     " << norm_error_estimate << "\n"
     << "top Fock population max " << top_fock_population_max << "\n";
+  if (max_excitation)
+    o << "max excitation          " << *max_excitation << "\n"
+      << "excitation leak max     " << excitation_leak_max << "\n"
+      << "attach dropped max      " << attach_dropped_max << "\n";
   for (const auto& w : warnings) o << "warning                 " << w << "\n";
   return o.str();
 }
@@ -130,7 +136,8 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
   auto s = std::make_shared<Stretch>();
   s->present = present;
   s->controls = controls;
-  s->layout = space::Layout(&m.subsystems, present);
+  s->layout = space::Layout(&m.subsystems, present, m.max_excitation);
+  s->leak = ExcitationLeak::build(m, s->layout, controls);
   const long n = s->layout.dimension();
   SparseMatrix h(n, n), decay(n, n);
   for (const auto& term : m.hamiltonian.terms()) {
@@ -342,8 +349,15 @@ Integrator::Integrator(Model model, Options options)
   const Model& m = *model_;
   if (!(m.end_us > m.start_us) || !std::isfinite(m.start_us) || !std::isfinite(m.end_us))
     throw InputError("trajectory model: end_us must be finite and > start_us");
-  for (const auto& s : m.subsystems)
+  for (const auto& s : m.subsystems) {
     if (s.dimension < 1) throw InputError("subsystem '" + s.name + "' has dimension < 1");
+    if (!s.excitation.empty() &&
+        (long(s.excitation.size()) != s.dimension || *std::min_element(s.excitation.begin(), s.excitation.end()) < 0))
+      throw InputError("subsystem '" + s.name + "': excitation numbers must be one per basis state and >= 0");
+    if (!s.allowed.empty() && long(s.allowed.size()) != s.dimension)
+      throw InputError("subsystem '" + s.name + "': allowed levels must be one flag per basis state");
+  }
+  if (m.max_excitation && *m.max_excitation < 0) throw InputError("trajectory model: max_excitation must be >= 0");
   channels::check_channel_completeness(m.subsystems, m.channels, m.physical_decay);
   const int nsub = int(m.subsystems.size());
   std::vector<bool> present(nsub, false);
@@ -402,8 +416,12 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
 
   std::vector<SubsystemId> present;
   Vector psi = Vector::Ones(1);
-  space::Layout layout(&m.subsystems, {});
-  for (const auto& f : m.initial) psi = layout.attach(f.subsystem, psi, f.state);
+  space::Layout layout(&m.subsystems, {}, m.max_excitation);
+  run.summary.max_excitation = m.max_excitation;
+  for (const auto& f : m.initial) {
+    psi = layout.attach(f.subsystem, psi, f.state);
+    run.summary.attach_dropped_max = std::max(run.summary.attach_dropped_max, layout.last_attach_dropped_fraction());
+  }
   std::vector<Complex> controls = m.controls;
   Schedule schedule;
   for (const auto& e : m.events) schedule.add(e.time_us, e.action);
@@ -458,6 +476,10 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
       break;
     }
     if (!check_fock()) break;
+    if (s.leak) {
+      const double p = s.leak->population(psi, leg.jump_us.value_or(stop));
+      run.summary.excitation_leak_max = std::max(run.summary.excitation_leak_max, p);
+    }
     if (leg.jump_us) {
       t = *leg.jump_us;
       // Channel with probability ∝ ‖C ψ‖².
@@ -518,6 +540,7 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
             a->state.size() != m.subsystems[a->subsystem].dimension)
           throw InputError("trajectory: attach at t = " + std::to_string(t) + " us of a present or unknown subsystem, or wrong state size");
         psi = layout.attach(a->subsystem, psi, a->state);
+        run.summary.attach_dropped_max = std::max(run.summary.attach_dropped_max, layout.last_attach_dropped_fraction());
       } else if (auto* d = std::get_if<Detach>(&e.action)) {
         if (!layout.contains(d->subsystem))
           throw InputError("trajectory: detach at t = " + std::to_string(t) + " us of an absent subsystem");

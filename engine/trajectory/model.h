@@ -7,6 +7,7 @@
 #pragma once
 
 #include <functional>
+#include <optional>
 #include <queue>
 #include <string>
 #include <variant>
@@ -96,6 +97,10 @@ struct Model {
   JumpHook on_jump;                           // optional (feedback)
   double start_us = 0.0;                      // trajectory start, µs
   double end_us = 1.0;                        // trajectory end, µs, > start_us
+  // Keep only basis states with at most this many excitations summed over the present
+  // subsystems (space::Subsystem::excitation; weak-drive truncation, docs/engine.md); unset:
+  // the full tensor product. The summary reports the estimated leaked norm.
+  std::optional<int> max_excitation;
 };
 
 }  // namespace flyby::trajectory

@@ -2,6 +2,7 @@
 // expectation values and a Summary (STYLE.md: Summary out).
 #pragma once
 
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -44,6 +45,13 @@ struct Summary {
   double norm_error_estimate = 0.0;    // max |‖ψ(t_jump)‖² − r| / r at the located jump times
   double top_fock_population_max = 0.0;
   double end_us = 0.0;                 // time reached
+  // Excitation-number truncation (Model::max_excitation), when used: the largest estimated
+  // population of the first excluded shell (trajectory/excitation_leak.h; at every jump and
+  // stretch end, relative to ‖ψ‖²) and the largest norm fraction dropped when a factor was
+  // attached above the limit (e.g. a coherent state's high photon numbers).
+  std::optional<int> max_excitation;
+  double excitation_leak_max = 0.0;
+  double attach_dropped_max = 0.0;
 
   long steps() const { return adaptive_steps + exponential_evaluations; }
   bool ok() const { return status == Status::kSuccess; }

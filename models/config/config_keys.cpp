@@ -234,6 +234,11 @@ std::vector<KeySpec> build_keys() {
   k.push_back(num("run.max_cluster_dimension_count", "states", "20000", O,
                   "Clusters whose joint Hilbert space is larger fall back to the documented approximation.", 1.0, false,
                   std::nullopt, T::kInteger));
+  k.push_back(num("run.max_excitation_count", "excitations", "2 above the dimension cap", O,
+                  "Weak-drive truncation of joint clusters: keep basis states with at most this many excitations "
+                  "(photons plus excited atoms). Set: every cluster uses it; unset: only clusters whose full basis "
+                  "exceeds run.max_cluster_dimension_count, with 2. The leaked norm is reported.",
+                  0.0, false, 20.0, T::kInteger));
   k.push_back(num("run.relative_tolerance_fraction", "fraction", "1e-6", O,
                   "Relative accuracy of the trajectory integrator.", 0.0, true, 1.0));
   k.push_back(num("run.arrival_block_us", "µs", "100", O,

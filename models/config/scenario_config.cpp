@@ -534,6 +534,7 @@ void read_run(const Reader& r, const toml::table& t, ScenarioConfig& sc) {
   run.seed = static_cast<std::uint64_t>(Reader::integer(t, "seed_id").value_or(1));
   run.interaction_cutoff = Reader::num(t, "interaction_cutoff_fraction").value_or(1e-3);
   run.max_cluster_dimension = Reader::integer(t, "max_cluster_dimension_count").value_or(20000);
+  if (auto k = Reader::integer(t, "max_excitation_count")) run.max_excitation = int(*k);
   run.relative_tolerance = Reader::num(t, "relative_tolerance_fraction").value_or(1e-6);
   run.arrival_block_us = Reader::num(t, "arrival_block_us").value_or(100.0);
   run.tagger_resolution_ps = Reader::num(t, "tagger_resolution_ps").value_or(1.0);

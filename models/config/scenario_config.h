@@ -81,6 +81,11 @@ struct RunConfig {
   std::uint64_t seed = 1;
   double interaction_cutoff = 1e-3;
   long long max_cluster_dimension = 20000;
+  // Excitation-number truncation of joint clusters (run.max_excitation_count): set = every
+  // cluster keeps states with ≤ this many excitations; unset = only clusters above
+  // max_cluster_dimension, with kDefaultMaxExcitation (docs/simulate.md, "Cluster methods").
+  std::optional<int> max_excitation;
+  static constexpr int kDefaultMaxExcitation = 2;
   double relative_tolerance = 1e-6;
   double arrival_block_us = 100.0;
   double tagger_resolution_ps = 1.0;

@@ -16,6 +16,7 @@
 #include "engine/ensemble/ensemble.h"
 #include "engine/records/record_writer.h"
 #include "engine/trajectory/integrator.h"
+#include "engine/trajectory/reachable_levels.h"
 #include "models/detectors/detector_config.h"
 #include "models/scenario/atom_view.h"
 
@@ -34,6 +35,10 @@ constexpr double kTwoPi = 6.283185307179586;
 // zero hyperfine energy in the frame, so the integrator's step is not set by a GHz phase). Light
 // shifts neglected by this are ≤ Ω²/(4Δ): 25 kHz for Ω/2π = 10 MHz at Δ/2π = 1 GHz.
 constexpr double kFarDetuningMHz = 1000.0;
+
+// Leaked norm of the excitation truncation above which the summary warns (same level as the Fock
+// monitor's warning, trajectory::Options::fock_warning_population).
+constexpr double kLeakWarningFraction = 1e-3;
 
 std::uint64_t kFallbackBit = std::uint64_t(1) << 63;
 std::uint64_t kEmptyBit = std::uint64_t(1) << 62;
@@ -182,19 +187,92 @@ std::vector<double> empty_resonator_rates_per_us(const config::CheckedScenario& 
 namespace {
 trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
                               const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
-                              std::vector<int>& channel_of);
+                              std::vector<int>& channel_of, const ClusterBasis& basis = {});
+
+// Basis size with k atoms together: full product, or the states with ≤ K excitations —
+// Σ_j C(k, j) x^j y^(k−j) · #{(n1, n2) ≤ cutoff: n1 + n2 ≤ K − j}, x (y) the excited (other)
+// sublevels per atom.
+double cluster_dimension(const config::CheckedScenario& s, const AtomMatrices& A, int k, std::optional<int> K) {
+  const int cut = s.resonator ? s.resonator->fock_cutoff : 0;
+  const int modes = s.resonator ? 2 : 0;
+  if (!K) return std::pow(double(cut + 1), modes) * std::pow(double(A.dim), k);
+  double x = 0;
+  for (bool e : A.excited) x += e;
+  const double y = A.dim - x;
+  auto photon_states = [&](int budget) {
+    if (budget < 0) return 0.0;
+    if (modes == 0) return 1.0;
+    double n = 0;
+    for (int n1 = 0; n1 <= std::min(cut, budget); ++n1) n += std::min(cut, budget - n1) + 1;
+    return n;
+  };
+  double total = 0, binom = 1;
+  for (int j = 0; j <= std::min(k, *K); ++j) {
+    total += binom * std::pow(x, j) * std::pow(y, k - j) * photon_states(*K - j);
+    binom = binom * (k - j) / (j + 1);
+  }
+  return total;
+}
+
+ClusterPlan plan(const config::CheckedScenario& s, const AtomMatrices& A, int k) {
+  ClusterPlan p;
+  const double cap = double(s.config.run.max_cluster_dimension);
+  const auto& K = s.config.run.max_excitation;
+  // Without a resonator and without feedback (a click switching a drive that all atoms see),
+  // nothing couples the atoms of a cluster.
+  if (!s.resonator && s.config.feedback.empty() && k > 1) {
+    p.method = ClusterMethod::kUncoupled;
+    p.basis.max_excitation = K;
+    p.dimension = cluster_dimension(s, A, 1, K);
+    return p;
+  }
+  if (!K) {
+    p.dimension = cluster_dimension(s, A, k, std::nullopt);
+    if (p.dimension <= cap || k <= 1) return p;
+  }
+  p.method = ClusterMethod::kTruncated;
+  p.basis.max_excitation = K.value_or(config::RunConfig::kDefaultMaxExcitation);
+  p.dimension = cluster_dimension(s, A, k, p.basis.max_excitation);
+  if (p.dimension <= cap || k <= 1) return p;
+  p.method = ClusterMethod::kIndependent;
+  p.basis = {};
+  p.dimension = cluster_dimension(s, A, 1, K);
+  if (K) p.basis.max_excitation = K;
+  return p;
+}
 }  // namespace
+
+const char* to_string(ClusterMethod m) {
+  switch (m) {
+    case ClusterMethod::kExact: return "exact";
+    case ClusterMethod::kTruncated: return "truncated";
+    case ClusterMethod::kIndependent: return "independent";
+    case ClusterMethod::kUncoupled: return "uncoupled";
+  }
+  return "unknown";
+}
+
+ClusterPlan plan_cluster(const config::CheckedScenario& s, int atoms_together) {
+  return plan(s, atom_matrices(s), atoms_together);
+}
 
 trajectory::Model build_cluster_model(const config::CheckedScenario& s, const std::vector<ClusterAtom>& atoms,
                                       double start_us, double end_us, std::vector<int>& channel_of) {
   return build_model(s, atom_matrices(s), atoms, start_us, end_us, channel_of);
 }
 
+trajectory::Model build_cluster_model(const config::CheckedScenario& s, const std::vector<ClusterAtom>& atoms,
+                                      double start_us, double end_us, std::vector<int>& channel_of,
+                                      const ClusterBasis& basis) {
+  return build_model(s, atom_matrices(s), atoms, start_us, end_us, channel_of, basis);
+}
+
 namespace {
 trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
                               const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
-                              std::vector<int>& channel_of) {
+                              std::vector<int>& channel_of, const ClusterBasis& basis) {
   trajectory::Model m;
+  m.max_excitation = basis.max_excitation;
   m.start_us = start_us;
   m.end_us = end_us;
   channel_of.clear();
@@ -254,6 +332,8 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
   for (const auto& ca : atoms) {
     const space::SubsystemId id = space::SubsystemId(m.subsystems.size());
     m.subsystems.push_back(space::Subsystem::levels(atom_label(ca.arrival), A.dim));
+    m.subsystems.back().excitation.assign(std::size_t(A.dim), 0);
+    for (int k = 0; k < A.dim; ++k) m.subsystems.back().excitation[std::size_t(k)] = A.excited[std::size_t(k)] ? 1 : 0;
     space::Vector psi = space::Vector::Zero(A.dim);
     psi(ca.arrival.initial_sublevel) = 1.0;
     if (ca.interval.begin_us <= start_us)
@@ -380,6 +460,7 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
       }
     };
   }
+  if (basis.prune_unreachable) trajectory::prune_unreachable_levels(m);
   return m;
 }
 }  // namespace
@@ -392,6 +473,7 @@ struct Task {
   std::vector<ClusterAtom> atoms;
   double start_us = 0, end_us = 0;
   std::uint64_t stream = 0;
+  ClusterBasis basis;
 };
 
 struct TaskResult {
@@ -401,6 +483,8 @@ struct TaskResult {
   bool ok = true;
   std::string message;
   std::vector<std::string> warnings;
+  double leak = 0.0, dropped = 0.0;
+  long pruned = 0;
 };
 
 std::int64_t to_ps(double t_us) { return std::llround(t_us * 1e6); }
@@ -451,29 +535,32 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
   const auto clusters = source::make_clusters(intervals);
   sum.clusters = clusters.size();
 
-  const long long cap = s.config.run.max_cluster_dimension;
   const AtomMatrices AM = atom_matrices(s);
-  const double mode_dim = s.resonator ? std::pow(double(s.resonator->fock_cutoff + 1), 2) : 1.0;
   std::vector<Task> tasks;
   for (const auto& c : clusters) {
     const int k = source::max_simultaneous(c);
     sum.max_simultaneous_atoms = std::max(sum.max_simultaneous_atoms, k);
-    const double dim = mode_dim * std::pow(double(AM.dim), k);
     const double t0 = c.span.begin_us, t1 = std::min(c.span.end_us, D);
-    if (dim <= double(cap) || k <= 1) {
+    const ClusterPlan p = plan(s, AM, k);
+    if (p.basis.max_excitation) sum.max_excitation = p.basis.max_excitation;
+    const bool joint = p.method == ClusterMethod::kExact || p.method == ClusterMethod::kTruncated;
+    if (joint) {
+      ++(p.method == ClusterMethod::kExact ? sum.exact_clusters : sum.truncated_clusters);
       Task t;
       t.start_us = t0;
       t.end_us = t1;
+      t.basis = p.basis;
       for (const auto& mbr : c.members) t.atoms.push_back({arrivals[mbr.atom], mbr.interval});
       t.stream = arrivals[c.members.front().atom].id;
       tasks.push_back(std::move(t));
     } else {
-      // Fallback: every atom alone with the resonator modes over its own interval.
-      ++sum.fallback_clusters;
+      // Every atom alone (with its own copy of the resonator modes, if any) over its own interval.
+      ++(p.method == ClusterMethod::kUncoupled ? sum.uncoupled_clusters : sum.fallback_clusters);
       for (const auto& mbr : c.members) {
         Task t;
         t.start_us = mbr.interval.begin_us;
         t.end_us = std::min(mbr.interval.end_us, D);
+        t.basis = p.basis;
         t.atoms.push_back({arrivals[mbr.atom], mbr.interval});
         t.stream = kFallbackBit | arrivals[mbr.atom].id;
         tasks.push_back(std::move(t));
@@ -482,8 +569,8 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
   }
   if (sum.fallback_clusters > 0)
     sum.warnings.push_back(std::to_string(sum.fallback_clusters) +
-                           " cluster(s) above run.max_cluster_dimension_count were simulated as independent "
-                           "single-atom sub-clusters (no collective effects between their atoms)");
+                           " cluster(s) above run.max_cluster_dimension_count even with the excitation truncation were "
+                           "simulated as independent single-atom sub-clusters (no collective effects between their atoms)");
   sum.trajectories = tasks.size();
 
   trajectory::Options topt;
@@ -499,7 +586,9 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     TaskResult r;
     if (t.end_us > t.start_us) {
       std::vector<int> channel_of;
-      trajectory::Model model = build_model(s, AM, t.atoms, t.start_us, t.end_us, channel_of);
+      trajectory::Model model = build_model(s, AM, t.atoms, t.start_us, t.end_us, channel_of, t.basis);
+      for (const auto& sub : model.subsystems)
+        for (bool a : sub.allowed) r.pruned += !a;
       trajectory::Integrator integ(model, topt);
       Rng rng = make_stream(sum.seed, StreamPurpose::kTrajectory, t.stream);
       const auto tr = integ.run(rng, ws);
@@ -509,6 +598,8 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
       r.ok = tr.summary.ok();
       r.message = tr.summary.message;
       r.warnings = tr.summary.warnings;
+      r.leak = tr.summary.excitation_leak_max;
+      r.dropped = tr.summary.attach_dropped_max;
       for (const auto& j : tr.jumps) {
         const int det = channel_of[std::size_t(j.channel)];
         if (det < 0 || j.time_us < 0.0 || j.time_us >= D) continue;
@@ -529,6 +620,9 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     sum.jumps += r.jumps;
     sum.steps += r.steps;
     sum.top_fock_population_max = std::max(sum.top_fock_population_max, r.top_fock);
+    sum.excitation_leak_max = std::max(sum.excitation_leak_max, r.leak);
+    sum.attach_dropped_max = std::max(sum.attach_dropped_max, r.dropped);
+    sum.pruned_levels += r.pruned;
     if (!r.ok && sum.ok) {
       sum.ok = false;
       sum.message = r.message;
@@ -537,6 +631,11 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
       if (std::find(sum.warnings.begin(), sum.warnings.end(), w) == sum.warnings.end()) sum.warnings.push_back(w);
     photons.insert(photons.end(), r.photons.begin(), r.photons.end());
   }
+
+  if (sum.max_excitation && std::max(sum.excitation_leak_max, sum.attach_dropped_max) > kLeakWarningFraction)
+    sum.warnings.push_back("excitation truncation: estimated leaked norm " +
+                           std::to_string(std::max(sum.excitation_leak_max, sum.attach_dropped_max)) + " (warning level " +
+                           std::to_string(kLeakWarningFraction) + "); raise run.max_excitation_count");
 
   // Empty intervals with a driven resonator: a coherent state stays coherent under the
   // no-jump evolution and under a jump of a (it is an eigenstate of a), so each output channel
@@ -624,6 +723,13 @@ std::string Summary::full_report() const {
   os << "  trajectories " << trajectories << ", most atoms together " << max_simultaneous_atoms << ", steps "
      << steps << ", empty-resonator photons " << empty_interval_photons << "\n";
   os << "  top-Fock population (max) " << top_fock_population_max << "\n";
+  os << "  cluster methods: " << exact_clusters << " exact, " << truncated_clusters << " truncated";
+  if (max_excitation) os << " (<= " << *max_excitation << " excitations)";
+  os << ", " << fallback_clusters << " independent atoms (approximation), " << uncoupled_clusters
+     << " uncoupled (exact); " << pruned_levels << " unreachable sublevels pruned\n";
+  if (max_excitation)
+    os << "  excitation truncation: leaked norm (max estimate) " << excitation_leak_max << ", dropped at attach (max) "
+       << attach_dropped_max << "\n";
   for (const auto& c : channels)
     os << "  channel " << c.name << ": " << c.photons << " photons at the detector, " << c.recorded
        << " tags recorded (" << double(c.recorded) / duration_s << " /s)\n";
@@ -642,6 +748,14 @@ std::string Summary::to_json() const {
   j["atoms_count"] = atoms;
   j["clusters_count"] = clusters;
   j["fallback_clusters_count"] = fallback_clusters;
+  j["exact_clusters_count"] = exact_clusters;
+  j["truncated_clusters_count"] = truncated_clusters;
+  j["independent_clusters_count"] = fallback_clusters;
+  j["uncoupled_clusters_count"] = uncoupled_clusters;
+  if (max_excitation) j["max_excitation_count"] = *max_excitation; else j["max_excitation_count"] = nullptr;
+  j["excitation_leak_fraction"] = excitation_leak_max;
+  j["attach_dropped_fraction"] = attach_dropped_max;
+  j["pruned_levels_count"] = pruned_levels;
   j["trajectories_count"] = trajectories;
   j["max_simultaneous_atoms_count"] = max_simultaneous_atoms;
   j["jumps_count"] = jumps;

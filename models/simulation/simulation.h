@@ -48,6 +48,15 @@ struct Summary {
   std::size_t atoms = 0;            // atoms that interact during the run
   std::size_t clusters = 0;         // interaction clusters (joint trajectories planned)
   std::size_t fallback_clusters = 0;  // clusters above the dimension cap, run as single-atom sub-clusters
+  // Cluster methods (docs/simulate.md, "Cluster methods"): joint trajectories on the full basis,
+  // on the excitation-truncated basis (fallback_clusters above counts the independent-atom ones).
+  std::size_t exact_clusters = 0;
+  std::size_t truncated_clusters = 0;
+  std::size_t uncoupled_clusters = 0;  // no shared mode: one exact trajectory per atom
+  std::optional<int> max_excitation;  // K used by the truncated clusters (if any)
+  double excitation_leak_max = 0.0;   // largest estimated leaked norm of a truncated trajectory
+  double attach_dropped_max = 0.0;    // largest norm fraction dropped when a factor was attached above K
+  long pruned_levels = 0;             // unreachable sublevels left out, summed over clusters (exact)
   std::size_t trajectories = 0;     // trajectories actually integrated
   int max_simultaneous_atoms = 0;   // most atoms in one joint trajectory at one time
   long jumps = 0;                   // quantum jumps of all trajectories (detected and undetected)
@@ -90,10 +99,47 @@ struct ClusterAtom {
   source::Interval interval;
 };
 
+// How one interaction cluster is integrated (docs/simulate.md, "Cluster methods").
+enum class ClusterMethod {
+  kExact,        // joint trajectory on the full tensor product (after exact pruning)
+  kTruncated,    // joint trajectory keeping states with ≤ K excitations (weak drive; leak reported)
+  kIndependent,  // every atom alone with its own copy of the modes (approximation, see the docs)
+  kUncoupled,    // no resonator: atoms share no subsystem, so one trajectory per atom is exact
+};
+const char* to_string(ClusterMethod m);
+
+// Basis choices of a cluster model.
+struct ClusterBasis {
+  // Keep only states with at most this many excitations (photons + excited atoms); unset: all.
+  std::optional<int> max_excitation;
+  // Leave out sublevels no operator reaches from the initial states (exact; engine
+  // trajectory::prune_unreachable_levels).
+  bool prune_unreachable = true;
+};
+
+struct ClusterPlan {
+  ClusterMethod method = ClusterMethod::kExact;
+  ClusterBasis basis;
+  double dimension = 0.0;  // basis size of the joint trajectory with `atoms_together` atoms (before pruning)
+};
+
+// Method for a cluster with at most `atoms_together` atoms present at once: without a resonator
+// and without feedback rules the atoms share nothing (each has its own free-space channels) and
+// run one by one (exact);
+// otherwise the full basis if
+// its dimension ≤ run.max_cluster_dimension_count and run.max_excitation_count is unset; the
+// excitation-truncated basis if run.max_excitation_count is set, or (with K = 2) when the full
+// basis is too large; independent atoms when even that exceeds the cap.
+ClusterPlan plan_cluster(const config::CheckedScenario& scenario, int atoms_together);
+
 // The engine model of one cluster over [start_us, end_us): modes (if any), atoms attached at
 // entry and detached at exit, Hamiltonian, channels, feedback hook. `channel_of[k]` gets, for
-// engine channel k, the detector channel index or −1 when undetected.
+// engine channel k, the detector channel index or −1 when undetected. Atoms' excited sublevels
+// carry one excitation, mode states n (space::Subsystem::excitation).
 trajectory::Model build_cluster_model(const config::CheckedScenario& scenario, const std::vector<ClusterAtom>& atoms,
                                       double start_us, double end_us, std::vector<int>& channel_of);
+trajectory::Model build_cluster_model(const config::CheckedScenario& scenario, const std::vector<ClusterAtom>& atoms,
+                                      double start_us, double end_us, std::vector<int>& channel_of,
+                                      const ClusterBasis& basis);
 
 }  // namespace flyby::simulation

@@ -1,0 +1,90 @@
+// Adiabatic estimate of the first excluded excitation shell (see excitation_leak.h).
+#include "engine/trajectory/excitation_leak.h"
+
+#include <cmath>
+#include <limits>
+
+#include "engine/common/errors.h"
+
+namespace flyby::trajectory {
+
+std::unique_ptr<ExcitationLeak> ExcitationLeak::build(const Model& m, const space::Layout& layout,
+                                                      const std::vector<Complex>& controls) {
+  if (!layout.max_excitation()) return nullptr;
+  const int K = *layout.max_excitation();
+  // Shell layout: ≤ K + 1 excitations; its states with exactly K + 1 form the excluded shell.
+  const space::Layout shell(&m.subsystems, layout.present(), K + 1);
+  std::vector<long> out_rows;  // positions in `shell` of the K + 1 states
+  for (long i = 0; i < shell.dimension(); ++i)
+    if (!layout.index_of_full(shell.full_index(i))) out_rows.push_back(i);
+  auto leak = std::make_unique<ExcitationLeak>();
+  leak->controls_ = controls;
+  const long n_out = long(out_rows.size());
+  // Selection of the out rows from a shell-layout matrix.
+  Sparse select(n_out, shell.dimension());
+  {
+    std::vector<Eigen::Triplet<Complex>> t;
+    for (long k = 0; k < n_out; ++k) t.emplace_back(k, out_rows[std::size_t(k)], 1.0);
+    select.setFromTriplets(t.begin(), t.end());
+  }
+  Sparse select_t = select.transpose();
+  auto blocks = [&](const operators::Operator& op) {
+    Sparse feed = select * Sparse(operators::to_sparse_between(op, layout, shell));
+    Sparse full = Sparse(operators::to_sparse(op, shell));
+    Sparse oo = select * full * select_t;
+    return std::make_pair(feed, oo);
+  };
+  leak->feed_const_.resize(n_out, layout.dimension());
+  leak->out_const_.resize(n_out, n_out);
+  for (const auto& term : m.hamiltonian.terms()) {
+    if (!term.op.active_in(shell)) continue;
+    auto b = blocks(term.op);
+    if (term.coefficient.time_dependent())
+      leak->timed_.push_back({&term.coefficient, std::move(b)});
+    else {
+      const Complex c = term.coefficient.constant_value(controls);
+      leak->feed_const_ += c * b.first;
+      leak->out_const_ += c * b.second;
+    }
+  }
+  // −(i/2) Σ C†C: decay never raises the excitation number, so it only enters the out block.
+  for (const auto& ch : m.channels) {
+    if (!ch.op.active_in(shell)) continue;
+    Sparse c = Sparse(operators::to_sparse(ch.op, shell));
+    Sparse ctc = Sparse(c.adjoint()) * c;
+    leak->out_const_ += Complex(0.0, -0.5) * Sparse(select * ctc * select_t);
+  }
+  if (leak->timed_.empty() && n_out > 0) {
+    leak->out_const_.makeCompressed();
+    auto lu = std::make_shared<Eigen::SparseLU<Sparse>>();
+    lu->compute(leak->out_const_);
+    if (lu->info() == Eigen::Success) leak->lu_const_ = lu;
+  }
+  return leak;
+}
+
+double ExcitationLeak::population(const Vector& psi, double t_us) const {
+  const double n2 = psi.squaredNorm();
+  if (!(n2 > 0) || out_const_.rows() == 0) return 0.0;
+  Eigen::VectorXcd rhs = feed_const_ * psi;
+  Sparse out = out_const_;
+  for (const auto& [c, b] : timed_) {
+    const Complex v = c->value(t_us, controls_);
+    rhs += v * (b.first * psi);
+    out += v * b.second;
+  }
+  if (rhs.squaredNorm() == 0.0) return 0.0;
+  Eigen::VectorXcd c_out;
+  if (lu_const_) {
+    c_out = lu_const_->solve(rhs);
+  } else {
+    Eigen::SparseLU<Sparse> lu;
+    out.makeCompressed();
+    lu.compute(out);
+    if (lu.info() != Eigen::Success) return std::numeric_limits<double>::infinity();
+    c_out = lu.solve(rhs);
+  }
+  return c_out.squaredNorm() / n2;
+}
+
+}  // namespace flyby::trajectory

@@ -1,0 +1,38 @@
+// Error estimate of the truncation by total excitation number (space::Layout restricted to ≤ K
+// excitations). H_eff feeds amplitude from the kept states into the first excluded shell (K + 1
+// excitations); the restricted evolution drops it. In the weak-drive regime that shell follows
+// the kept amplitudes adiabatically (its states all decay, at ≥ min(κ, Γ/2)), so its amplitude is
+//   c_out ≈ −(H_eff,out)⁻¹ · H_out←kept · ψ,
+// the first-order adiabatic elimination of the shell; ‖c_out‖²/‖ψ‖² is the *leaked norm* the
+// integrator reports (its maximum over the sampled times). It is an estimate, not a bound: it
+// neglects the shells above K + 1 (higher order in the drive) and the non-adiabatic transient
+// right after a jump or an attach.
+#pragma once
+
+#include <Eigen/SparseLU>
+#include <memory>
+#include <optional>
+
+#include "engine/space/layout.h"
+#include "engine/trajectory/model.h"
+
+namespace flyby::trajectory {
+
+class ExcitationLeak {
+ public:
+  // For a `layout` restricted by excitation number (otherwise: returns nothing). Coefficients with a time
+  // function are evaluated when population() is called; controls are fixed for the stretch.
+  static std::unique_ptr<ExcitationLeak> build(const Model& model, const space::Layout& layout,
+                                               const std::vector<Complex>& controls);
+  // Estimated population of the first excluded shell relative to ‖ψ‖², at time t_us.
+  double population(const Vector& psi, double t_us) const;
+
+ private:
+  using Sparse = Eigen::SparseMatrix<Complex, Eigen::ColMajor>;
+  Sparse feed_const_, out_const_;  // out ← kept, out ← out (H_eff)
+  std::vector<std::pair<const operators::Coefficient*, std::pair<Sparse, Sparse>>> timed_;
+  std::vector<Complex> controls_;
+  std::shared_ptr<Eigen::SparseLU<Sparse>> lu_const_;  // factorized out block when nothing is time dependent
+};
+
+}  // namespace flyby::trajectory
