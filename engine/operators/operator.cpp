@@ -135,25 +135,6 @@ Complex expectation(const Operator& op, const Layout& layout, const Vector& psi)
   return psi.dot(o) / psi.squaredNorm();
 }
 
-// Sparse full-space matrix of one local factor.
-static SparseMatrix factor_sparse(const LocalMatrix& m, long d, long s, long n) {
-  std::vector<Eigen::Triplet<Complex>> trip;
-  const long block = d * s;
-  long nnz_local = 0;
-  for (long a = 0; a < d; ++a)
-    for (long b = 0; b < d; ++b) nnz_local += (m(a, b) != Complex(0.0));
-  trip.reserve(nnz_local * (n / d));
-  for (long o = 0; o < n / block; ++o)
-    for (long a = 0; a < d; ++a)
-      for (long b = 0; b < d; ++b) {
-        if (m(a, b) == Complex(0.0)) continue;
-        for (long i = 0; i < s; ++i) trip.emplace_back(o * block + a * s + i, o * block + b * s + i, m(a, b));
-      }
-  SparseMatrix r(n, n);
-  r.setFromTriplets(trip.begin(), trip.end());
-  return r;
-}
-
 SparseMatrix to_sparse_between(const Operator& op, const Layout& cols, const Layout& rows) {
   FLYBY_CHECK(cols.present() == rows.present(), "to_sparse_between: layouts of different subsystems");
   std::vector<Eigen::Triplet<Complex>> trip;
@@ -194,24 +175,52 @@ SparseMatrix to_sparse_between(const Operator& op, const Layout& cols, const Lay
   return r;
 }
 
+// Full-space matrix built directly from the Kronecker structure: for every product term, the
+// nonzero combinations of its local factors (row and column offsets Σ a_k s_k, Σ b_k s_k and the
+// product of entries) are placed at every basis index whose digits on the factors' subsystems
+// are zero. One triplet list for all terms, summed by setFromTriplets — no sparse products,
+// which made this the largest per-cluster set-up cost (docs/performance.md).
 SparseMatrix to_sparse(const Operator& op, const Layout& layout) {
   if (layout.restricted()) return to_sparse_between(op, layout, layout);
   const long n = layout.dimension();
-  SparseMatrix sum(n, n);
+  struct Entry {
+    long row, col;
+    Complex value;
+  };
+  std::vector<Eigen::Triplet<Complex>> trip;
+  std::vector<Entry> combos, next;
   for (const auto& t : op.terms()) {
     if (!term_active(t, layout)) continue;
-    SparseMatrix p;
-    if (t.factors.empty()) {
-      p.resize(n, n);
-      p.setIdentity();
-    }
+    combos.assign(1, Entry{0, 0, t.weight});
+    std::vector<std::pair<long, long>> digits;  // (stride, dimension) of the factors
     for (const auto& f : t.factors) {
       FLYBY_CHECK(f.matrix.rows() == layout.dimension_of(f.target), "local operator dimension mismatch");
-      SparseMatrix fs = factor_sparse(f.matrix, f.matrix.rows(), layout.stride_of(f.target), n);
-      if (p.size() == 0) p = std::move(fs); else p = SparseMatrix(p * fs);
+      const long d = f.matrix.rows(), st = layout.stride_of(f.target);
+      digits.emplace_back(st, d);
+      next.clear();
+      for (const auto& c : combos)
+        for (long a = 0; a < d; ++a)
+          for (long b = 0; b < d; ++b) {
+            const Complex m = f.matrix(a, b);
+            if (m == Complex(0.0)) continue;
+            next.push_back(Entry{c.row + a * st, c.col + b * st, c.value * m});
+          }
+      combos.swap(next);
     }
-    sum += t.weight * p;
+    if (combos.empty()) continue;
+    for (long base = 0; base < n; ++base) {
+      bool zero_digits = true;
+      for (const auto& [st, d] : digits)
+        if ((base / st) % d != 0) {
+          zero_digits = false;
+          break;
+        }
+      if (!zero_digits) continue;
+      for (const auto& c : combos) trip.emplace_back(base + c.row, base + c.col, c.value);
+    }
   }
+  SparseMatrix sum(n, n);
+  sum.setFromTriplets(trip.begin(), trip.end());
   sum.prune(Complex(0.0));
   return sum;
 }

@@ -6,6 +6,7 @@
 #pragma once
 
 #include <functional>
+#include <memory>
 #include <optional>
 #include <vector>
 
@@ -15,10 +16,14 @@ namespace flyby::operators {
 
 // A function of time in µs. Must be pure (called from several threads) and defined for all t.
 using TimeFunction = std::function<Complex(double t_us)>;
+// Shared so that copies of a coefficient (e.g. c and c* of add_hermitian, or one coupling used by
+// several terms) keep the identity of their function: the integrator evaluates each distinct
+// function once per right-hand side and sums the terms that share it into one sparse matrix.
+using SharedTimeFunction = std::shared_ptr<const TimeFunction>;
 
 struct Coefficient {
   Complex constant{1.0, 0.0};
-  TimeFunction time_fn;          // empty: no time dependence
+  SharedTimeFunction time_fn;    // null: no time dependence
   std::optional<int> control;    // index into the model's controls; empty: none
   bool conjugate = false;        // value uses conj(time_fn(t) · control)
 
@@ -30,21 +35,29 @@ struct Coefficient {
   static Coefficient of_time(TimeFunction f, Complex scale = 1.0) {
     Coefficient k;
     k.constant = scale;
-    k.time_fn = std::move(f);
+    if (f) k.time_fn = std::make_shared<const TimeFunction>(std::move(f));
     return k;
   }
   static Coefficient of_control(int control, Complex scale = 1.0, TimeFunction f = {}) {
     Coefficient k;
     k.constant = scale;
     k.control = control;
-    k.time_fn = std::move(f);
+    if (f) k.time_fn = std::make_shared<const TimeFunction>(std::move(f));
     return k;
   }
 
   bool time_dependent() const { return static_cast<bool>(time_fn); }
   Complex value(double t_us, const std::vector<Complex>& controls) const {
     Complex v{1.0, 0.0};
-    if (time_fn) v *= time_fn(t_us);
+    if (time_fn) v *= (*time_fn)(t_us);
+    if (control) v *= controls.at(std::size_t(*control));
+    return constant * (conjugate ? std::conj(v) : v);
+  }
+  // The factor multiplying the time function (or the whole value when there is none) for given
+  // control values: value(t) = control_factor · f(t), or control_factor · conj(f(t)) when
+  // `conjugate` is set.
+  Complex control_factor(const std::vector<Complex>& controls) const {
+    Complex v{1.0, 0.0};
     if (control) v *= controls.at(std::size_t(*control));
     return constant * (conjugate ? std::conj(v) : v);
   }

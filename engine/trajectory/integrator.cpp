@@ -30,7 +30,21 @@ struct Stretch {
   std::vector<Complex> controls;
   space::Layout layout;
   SparseMatrix heff_const;  // time-independent part of H_eff = H − (i/2) Σ C†C
-  std::vector<std::pair<const operators::Coefficient*, SparseMatrix>> timed;  // c_k(t)·H_k
+  // Right-hand side of dψ/dt = −i H_eff(t) ψ = R0 ψ + Σ_g φ_g(t) R_g ψ, with R0 = −i·heff_const and
+  // R_g = −i Σ_{k in g} (constant·control)_k H_k summed over the terms that share one time
+  // function and conjugation flag; φ_g = f(t) or conj f(t). Each distinct f is evaluated once per
+  // right-hand side (fns), so c·O + c*·O† or one coupling used by two modes cost one call.
+  SparseMatrix rhs_const;
+  std::vector<const operators::TimeFunction*> fns;
+  struct TimedGroup {
+    std::size_t fn = 0;      // index into fns
+    bool conjugate = false;  // φ = conj f(t)
+    SparseMatrix rhs;        // R_g
+    double norm = 0;         // ‖Σ (constant·control)_k H_k‖_F, for the first step size
+  };
+  std::vector<TimedGroup> timed;
+  bool timed_any() const { return !timed.empty(); }
+  SparseMatrix decay;  // Σ C†C: −d‖ψ‖²/dt = ⟨ψ|Σ C†C|ψ⟩ (the exact path's Newton derivative)
   std::vector<int> channel_ids;
   std::vector<SparseMatrix> channel_ops;
   std::vector<std::pair<SubsystemId, int>> modes;  // (mode id, index of its top Fock state)
@@ -38,11 +52,21 @@ struct Stretch {
   Eigen::MatrixXcd v, v_inv;
   Eigen::VectorXcd lambda;
   std::shared_ptr<const ExcitationLeak> leak;  // set when the layout is excitation-restricted
+  Eigen::VectorXd lambda_re, lambda_im;  // Re λ, Im λ (≤ 0) of the eigenvalues of H_eff
+  double lambda_scale = 0;               // max |λ|
 };
 
 }  // namespace
 
+// Scratch vectors reused across jumps and trajectories of one thread (no allocation per jump).
+struct Buffers {
+  Vector coef, x, tmp, dtmp;
+  std::vector<Vector> cpsi;
+  std::vector<double> weights;
+};
+
 struct StretchCache {
+  Buffers buffers;
   std::uint64_t owner = 0;  // Integrator::id_ of the cached entries (0: none)
   std::vector<std::shared_ptr<Stretch>> entries;  // most recently used last
   static constexpr std::size_t kCapacity = 16;
@@ -116,9 +140,11 @@ namespace {
 // State of one running trajectory that the propagators update.
 struct Run {
   const Options* options;
+  Buffers* buffers;
   Summary summary;
   bool fock_warned = false;
   double last_wait_us = 0;  // previous exact waiting time: the first bracket guess
+  double last_step_us = 0;  // step the adaptive controller proposed last: the next stretch starts there
 
   void monitor(const Stretch& s, const Vector& psi) {
     if (s.modes.empty()) return;
@@ -140,18 +166,40 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
   s->leak = ExcitationLeak::build(m, s->layout, controls);
   const long n = s->layout.dimension();
   SparseMatrix h(n, n), decay(n, n);
+  std::vector<SparseMatrix> timed_h;  // Σ (constant·control)_k H_k per group, before the −i
   for (const auto& term : m.hamiltonian.terms()) {
     if (!term.op.active_in(s->layout)) continue;
     SparseMatrix op = operators::to_sparse(term.op, s->layout);
-    if (term.coefficient.time_dependent())
-      s->timed.emplace_back(&term.coefficient, std::move(op));
-    else
-      h += term.coefficient.constant_value(controls) * op;
+    const auto& c = term.coefficient;
+    if (c.time_dependent()) {
+      const operators::TimeFunction* f = c.time_fn.get();
+      std::size_t fi = std::size_t(std::find(s->fns.begin(), s->fns.end(), f) - s->fns.begin());
+      if (fi == s->fns.size()) s->fns.push_back(f);
+      std::size_t g = 0;
+      while (g < s->timed.size() && !(s->timed[g].fn == fi && s->timed[g].conjugate == c.conjugate)) ++g;
+      if (g == s->timed.size()) {
+        s->timed.push_back({fi, c.conjugate, SparseMatrix(n, n), 0.0});
+        timed_h.push_back(SparseMatrix(n, n));
+      }
+      timed_h[g] += c.control_factor(controls) * op;
+    } else {
+      h += c.constant_value(controls) * op;
+    }
+  }
+  for (std::size_t g = 0; g < s->timed.size(); ++g) {
+    timed_h[g].prune(Complex(0.0));
+    s->timed[g].norm = timed_h[g].norm();
+    s->timed[g].rhs = -kI * timed_h[g];
   }
   // Hermiticity of H at the stretch start (a model error, not numerical trouble).
   {
     SparseMatrix ht = h;
-    for (const auto& [c, op] : s->timed) ht += c->value(t_us, controls) * op;
+    std::vector<Complex> fv;
+    for (const auto* f : s->fns) fv.push_back((*f)(t_us));
+    for (std::size_t g = 0; g < s->timed.size(); ++g) {
+      const Complex phi = s->timed[g].conjugate ? std::conj(fv[s->timed[g].fn]) : fv[s->timed[g].fn];
+      ht += phi * timed_h[g];
+    }
     SparseMatrix adj = ht.adjoint();
     const double diff = SparseMatrix(ht - adj).norm();
     if (!(diff <= 1e-10 * std::max(1.0, ht.norm())))
@@ -166,15 +214,22 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
     s->channel_ops.push_back(std::move(c));
   }
   s->heff_const = h - Complex(0.0, 0.5) * decay;
+  s->heff_const.prune(Complex(0.0));
+  s->rhs_const = -kI * s->heff_const;
+  s->decay = decay;
+  s->decay.prune(Complex(0.0));
   for (auto id : present)
     if (m.subsystems[id].kind == space::SubsystemKind::kMode) s->modes.emplace_back(id, m.subsystems[id].dimension - 1);
-  if (s->timed.empty() && opt.exact_exponential && n <= opt.max_exact_dimension) {
+  if (!s->timed_any() && opt.exact_exponential && n <= opt.max_exact_dimension) {
     Eigen::MatrixXcd dense = Eigen::MatrixXcd(s->heff_const);
     Eigen::ComplexEigenSolver<Eigen::MatrixXcd> es(dense);
     ++summary.eigendecompositions;
     if (es.info() == Eigen::Success) {
       s->v = es.eigenvectors();
       s->lambda = es.eigenvalues();
+      s->lambda_re = s->lambda.real();
+      s->lambda_im = s->lambda.imag();
+      s->lambda_scale = s->lambda.cwiseAbs().maxCoeff();
       Eigen::PartialPivLU<Eigen::MatrixXcd> lu(s->v);
       s->v_inv = lu.inverse();
       const double cond = s->v.norm() * s->v_inv.norm() / double(n);
@@ -198,69 +253,106 @@ struct Tolerance {
 Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t1, double r) {
   Leg leg;
   const double total = t1 - t0;
-  const Eigen::VectorXcd c = s.v_inv * psi;
-  Vector tmp;
-  auto state_at = [&](double tau, Vector& out) {
-    out = s.v * (c.array() * (-kI * s.lambda.array() * tau).exp()).matrix();
-  };
-  auto g = [&](double tau) {
-    state_at(tau, tmp);
-    ++run.summary.exponential_evaluations;
-    run.monitor(s, tmp);
-    return tmp.squaredNorm() - r;
-  };
-  const double g0 = psi.squaredNorm() - r;
-  if (g0 <= 0) {
+  const double n0 = psi.squaredNorm();
+  if (n0 - r <= 0) {
     leg.jump_us = t0;
     return leg;
   }
   if (total <= 0) return leg;
-  // Bracket the root (the norm is non-increasing) starting from the previous waiting time of
-  // this trajectory (or the fastest time scale of H_eff): double upwards until ‖ψ‖² ≤ r or the
-  // stretch ends, or halve downwards until ‖ψ‖² > r; then TOMS 748 inside the bracket.
-  const double scale = s.lambda.cwiseAbs().maxCoeff();
-  double guess = run.last_wait_us > 0 ? run.last_wait_us : (scale > 0 ? 1.0 / scale : total);
-  double a = 0, ga = g0;
-  double b = std::min(guess, total), gb = g(b);
-  if (!std::isfinite(gb)) {
-    leg.failed = true;
-    return leg;
-  }
-  if (gb > 0) {
-    while (gb > 0 && b < total) {
-      a = b;
-      ga = gb;
-      b = std::min(total, 2 * b);
-      gb = g(b);
-      if (!std::isfinite(gb)) {
-        leg.failed = true;
-        return leg;
-      }
+  Buffers& w = *run.buffers;
+  const long n = psi.size();
+  w.coef.resize(n);
+  w.x.resize(n);
+  w.tmp.resize(n);
+  w.dtmp.resize(n);
+  w.coef.noalias() = s.v_inv * psi;
+  const double logr = std::log(r);
+  // h(τ) = ln‖ψ(τ)‖² − ln r is decreasing, with h′(τ) = −⟨ψ|Σ C†C|ψ⟩/‖ψ‖² exact from ψ(τ). For a
+  // constant decay rate h is linear, so Newton's method on h converges in one or two steps.
+  double nn = 0;
+  auto eval = [&](double tau, double& h, double& hp) {
+    for (long k = 0; k < n; ++k) {
+      // e^{−iλτ} = e^{Im λ·τ} (cos(Re λ·τ) − i sin(Re λ·τ)), without the special cases of cexp.
+      const double amp = std::exp(s.lambda_im[k] * tau), ph = s.lambda_re[k] * tau;
+      const double cr = amp * std::cos(ph), ci = -amp * std::sin(ph);
+      const Complex c = w.coef[k];
+      w.x[k] = Complex(c.real() * cr - c.imag() * ci, c.real() * ci + c.imag() * cr);
     }
-    if (gb > 0) {  // no jump in this stretch; tmp holds ψ(total)
-      psi = tmp;
+    w.tmp.noalias() = s.v * w.x;
+    ++run.summary.exponential_evaluations;
+    run.monitor(s, w.tmp);
+    nn = w.tmp.squaredNorm();
+    w.dtmp.noalias() = s.decay * w.tmp;
+    h = std::log(nn) - logr;
+    hp = -w.tmp.dot(w.dtmp).real() / nn;
+  };
+  const double tol = run.options->jump_time_tolerance_us;
+  // Bracket [a, b] with h(a) > 0 ≥ h(b) (b unknown until found); safeguarded Newton: a step
+  // outside the bracket is replaced by bisection, and before b is known by doubling.
+  double a = 0;
+  std::optional<double> b;
+  w.dtmp.noalias() = s.decay * psi;
+  const double ha0 = std::log(n0) - logr, hpa0 = -psi.dot(w.dtmp).real() / n0;
+  double tau = hpa0 < 0 ? -ha0 / hpa0 : (run.last_wait_us > 0 ? run.last_wait_us : (s.lambda_scale > 0 ? 1.0 / s.lambda_scale : total));
+  tau = std::min(std::max(tau, tol), total);
+  for (int it = 0;; ++it) {
+    double h = 0, hp = 0;
+    eval(tau, h, hp);
+    if (!std::isfinite(nn)) {
+      leg.failed = true;
       return leg;
     }
-  } else {
-    while (b > 4 * run.options->jump_time_tolerance_us) {
-      const double c = 0.5 * b, gc = g(c);
-      if (gc > 0) {
-        a = c;
-        ga = gc;
-        break;
+    if (h > 0) {
+      a = tau;
+      if (tau >= total) {  // no jump in this stretch; tmp holds ψ(total)
+        psi = w.tmp;
+        return leg;
       }
-      b = c;
-      gb = gc;
+    } else {
+      b = tau;
     }
+    const double newton = (std::isfinite(h) && hp < 0) ? tau - h / hp : std::nan("");
+    double next;
+    if (b) {
+      next = (newton > a && newton < *b) ? newton : 0.5 * (a + *b);
+      if (*b - a <= tol) break;
+    } else {
+      next = newton > tau ? std::min(newton, total) : std::min(2 * tau, total);
+    }
+    if ((std::isfinite(newton) && std::abs(newton - tau) <= 0.5 * tol) || it >= 200) break;
+    tau = next;
   }
-  std::uintmax_t iters = 200;
-  auto [lo, hi] = boost::math::tools::toms748_solve(g, a, b, ga, gb, Tolerance{run.options->jump_time_tolerance_us}, iters);
-  const double tau = 0.5 * (lo + hi);
-  state_at(tau, psi);
+  psi = w.tmp;
   leg.jump_us = t0 + tau;
   run.last_wait_us = tau;
-  run.summary.norm_error_estimate = std::max(run.summary.norm_error_estimate, std::abs(psi.squaredNorm() - r) / r);
+  run.summary.norm_error_estimate = std::max(run.summary.norm_error_estimate, std::abs(nn - r) / r);
   return leg;
+}
+
+// out = M·in (accumulate = false) or out += φ·M·in, for a compressed row-major sparse matrix.
+// Written out with real arithmetic: std::complex products call the NaN-checking __muldc3, and
+// this loop is where moving atoms spend most of their time (docs/performance.md).
+void csr_apply(const SparseMatrix& m, const double* in, double* out, bool accumulate, Complex phi = 1.0) {
+  const auto* outer = m.outerIndexPtr();
+  const auto* inner = m.innerIndexPtr();
+  const double* val = reinterpret_cast<const double*>(m.valuePtr());
+  const double pr = phi.real(), pi = phi.imag();
+  for (long i = 0; i < m.rows(); ++i) {
+    double ar = 0, ai = 0;
+    for (auto k = outer[i]; k < outer[i + 1]; ++k) {
+      const double vr = val[2 * k], vi = val[2 * k + 1];
+      const double xr = in[2 * inner[k]], xi = in[2 * inner[k] + 1];
+      ar += vr * xr - vi * xi;
+      ai += vr * xi + vi * xr;
+    }
+    if (accumulate) {
+      out[2 * i] += pr * ar - pi * ai;
+      out[2 * i + 1] += pr * ai + pi * ar;
+    } else {
+      out[2 * i] = ar;
+      out[2 * i + 1] = ai;
+    }
+  }
 }
 
 Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, double t1, double r) {
@@ -272,13 +364,14 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
   }
   if (t1 <= t0) return leg;
   const long n = psi.size();
-  const std::vector<Complex>& controls = s.controls;
+  std::vector<Complex> fv(s.fns.size());
   auto system = [&](const StateVec& x, StateVec& dxdt, double t) {
-    Eigen::Map<const Vector> in(reinterpret_cast<const Complex*>(x.data()), n);
-    Eigen::Map<Vector> out(reinterpret_cast<Complex*>(dxdt.data()), n);
-    out.noalias() = s.heff_const * in;
-    for (const auto& [c, op] : s.timed) out.noalias() += c->value(t, controls) * (op * in);
-    out *= -kI;
+    csr_apply(s.rhs_const, x.data(), dxdt.data(), false);
+    for (std::size_t k = 0; k < fv.size(); ++k) fv[k] = (*s.fns[k])(t);
+    for (const auto& g : s.timed) {
+      const Complex phi = g.conjugate ? std::conj(fv[g.fn]) : fv[g.fn];
+      if (phi != Complex(0.0)) csr_apply(g.rhs, x.data(), dxdt.data(), true, phi);
+    }
   };
   StateVec x(2 * n);
   Eigen::Map<Vector>(reinterpret_cast<Complex*>(x.data()), n) = psi;
@@ -286,8 +379,11 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
   auto stepper = odeint::make_dense_output(opt.atol, opt.rtol, opt.max_step_us.value_or(0.0),
                                            odeint::runge_kutta_dopri5<StateVec>());
   double bound = s.heff_const.norm();
-  for (const auto& [c, op] : s.timed) bound += std::abs(c->value(t0, controls)) * op.norm();
-  double dt0 = std::min(t1 - t0, 0.01 / std::max(bound, 1e-12));
+  for (const auto& g : s.timed) bound += std::abs((*s.fns[g.fn])(t0)) * g.norm;
+  // Start from the step the controller reached before (a jump or an event rarely changes the
+  // fastest frequency much; a too long step is simply rejected and shortened), else from a
+  // conservative 1 % of the inverse norm of H_eff.
+  double dt0 = std::min(t1 - t0, run.last_step_us > 0 ? run.last_step_us : 0.01 / std::max(bound, 1e-12));
   if (opt.max_step_us) dt0 = std::min(dt0, *opt.max_step_us);
   stepper.initialize(x, t0, dt0);
   StateVec xi(2 * n);
@@ -306,6 +402,7 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
     }
     auto [ta, tb] = stepper.do_step(system);
     ++run.summary.adaptive_steps;
+    run.last_step_us = stepper.current_time_step();
     const bool reaches_end = tb >= t1;
     const double thi = reaches_end ? t1 : tb;
     if (reaches_end) stepper.calc_state(t1, xi); else xi = stepper.current_state();
@@ -410,7 +507,7 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
     cache.owner = id_;
   }
   TrajectoryResult result;
-  Run run{&opt, {}};
+  Run run{&opt, &cache.buffers, {}};
   result.samples.assign(opt.sample_times_us.size(),
                         std::vector<Complex>(opt.observables.size(), Complex(std::nan(""), std::nan(""))));
 
@@ -483,11 +580,14 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
     if (leg.jump_us) {
       t = *leg.jump_us;
       // Channel with probability ∝ ‖C ψ‖².
-      std::vector<double> w(s.channel_ops.size());
-      std::vector<Vector> cpsi(s.channel_ops.size());
+      std::vector<double>& w = cache.buffers.weights;
+      std::vector<Vector>& cpsi = cache.buffers.cpsi;
+      w.assign(s.channel_ops.size(), 0.0);
+      if (cpsi.size() < w.size()) cpsi.resize(w.size());
       double total = 0;
       for (std::size_t k = 0; k < w.size(); ++k) {
-        cpsi[k] = s.channel_ops[k] * psi;
+        cpsi[k].resize(psi.size());
+        cpsi[k].noalias() = s.channel_ops[k] * psi;
         w[k] = cpsi[k].squaredNorm();
         total += w[k];
       }

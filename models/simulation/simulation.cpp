@@ -361,12 +361,14 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
     // g(t) Σ_q w_iq A_q† a_i plus its conjugate.
     if (has_res) {
       const auto& w = view.mode_weights();
+      // One coefficient (one shared time function) for both modes: the engine evaluates g(t) once
+      // per right-hand side for all four terms.
+      const Coefficient c = fixed ? Coefficient::scalar(view.resonator_coupling(start_us))
+                                  : Coefficient::of_time([view](double t) { return view.resonator_coupling(t); });
       for (int i = 0; i < 2; ++i) {
         LocalMatrix up = LocalMatrix::Zero(A.dim, A.dim);
         for (int q = 0; q < 3; ++q) up += w[i][q] * A.coupling[q].adjoint();
         if (up.norm() == 0.0) continue;
-        Coefficient c = fixed ? Coefficient::scalar(view.resonator_coupling(start_us))
-                              : Coefficient::of_time([view](double t) { return view.resonator_coupling(t); });
         m.hamiltonian.add_hermitian(c, Operator::product({{space::SubsystemId(i), a[i]}, {id, up}}));
       }
     }
