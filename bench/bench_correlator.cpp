@@ -7,7 +7,8 @@
 // (2) `flyby correlate`'s path (validating RecordReader, read-ahead thread, correlator), and
 // reports both rates and their ratio. Run with
 //   bench_correlator --benchmark_out=correlator.json --benchmark_out_format=json
-// for JSON. Rates per CPU second (tags_per_cpu_s) count the CPU time of all threads of the
+// for JSON. With FLYBY_BENCH_RECORD=RUN.h5 (channels 0 and 1) the file benchmark runs on that
+// record instead (e.g. a 10^9-tag record from `flyby synth`). Rates per CPU second (tags_per_cpu_s) count the CPU time of all threads of the
 // process, so they are rates per core even on a loaded machine; tags_per_s is wall time.
 #include <benchmark/benchmark.h>
 #include <hdf5.h>
@@ -15,6 +16,7 @@
 
 #include <chrono>
 #include <cmath>
+#include <cstdlib>
 #include <ctime>
 #include <filesystem>
 #include <vector>
@@ -104,6 +106,7 @@ BENCHMARK(BM_Correlator)->Args({1, 100'000})->Args({2, 100'000})->Args({1, 1'000
 
 const std::filesystem::path& record_file() {
   static const std::filesystem::path p = [] {
+    if (const char* given = std::getenv("FLYBY_BENCH_RECORD")) return std::filesystem::path(given);
     const auto& s = stream();
     auto path = std::filesystem::temp_directory_path() / ("flyby-bench-corr-" + std::to_string(::getpid()) + ".h5");
     flyby::records::RecordHeader h;
@@ -153,6 +156,7 @@ void BM_CorrelateFileVsPlainRead(benchmark::State& state) {
   const auto& path = record_file();
   const int threads = static_cast<int>(state.range(0));
   double read_wall = 0, corr_wall = 0, corr_cpu = 0;
+  std::uint64_t n_tags = 0;
   for (auto _ : state) {
     double w0 = wall_seconds();
     benchmark::DoNotOptimize(plain_read(path));
@@ -161,7 +165,10 @@ void BM_CorrelateFileVsPlainRead(benchmark::State& state) {
     w0 = wall_seconds();
     const double c0 = cpu_seconds();
     flyby::records::RecordReader reader(path);
-    flyby::analysis::Correlator c(options(threads, state.range(1)));
+    auto o = options(threads, state.range(1));
+    o.duration_ps = reader.header().duration_ps;
+    n_tags = reader.tag_count();
+    flyby::analysis::Correlator c(o);
     flyby::records::BlockPrefetcher ahead(reader, kBlock);
     flyby::records::TagBlock b;
     while (ahead.next(b)) c.add_chunk(b.time_ps, b.channel);
@@ -171,7 +178,7 @@ void BM_CorrelateFileVsPlainRead(benchmark::State& state) {
     corr_wall += dw;
     state.SetIterationTime(dw);
   }
-  const double tags = static_cast<double>(kTags) * static_cast<double>(state.iterations());
+  const double tags = static_cast<double>(n_tags) * static_cast<double>(state.iterations());
   state.counters["plain_read_tags_per_s"] = tags / read_wall;
   state.counters["correlate_tags_per_s"] = tags / corr_wall;
   state.counters["correlate_tags_per_cpu_s"] = tags / corr_cpu;
