@@ -98,7 +98,7 @@ TEST_CASE("synthetic record: Poisson channel counts and beat pairs in the cross-
   CHECK(s.peak_pending_tags < 64);
 }
 
-TEST_CASE("synthetic record: same seed, same record; different seed, different record", "[records][synthetic]") {
+TEST_CASE("synthetic record: the same seed gives the same record, another seed another record", "[records][synthetic]") {
   flyby::test::ScratchDir dir("synthetic_repro");
   auto o = beat_options(flyby::test::seed("synthetic_repro"));
   o.duration_s = 0.05;
