@@ -7,21 +7,11 @@
 #include <cmath>
 #include <limits>
 #include <sstream>
+#include <type_traits>
 
 #include "engine/common/errors.h"
 
 namespace flyby::analysis {
-namespace {
-
-// Floor division for a positive divisor (C++ '/' truncates towards zero).
-inline std::int64_t floor_div(std::int64_t a, std::int64_t b) {
-  std::int64_t q = a / b;
-  if ((a % b != 0) && (a < 0)) --q;
-  return q;
-}
-
-}  // namespace
-
 const char* to_string(CorrelatorStatus s) {
   switch (s) {
     case CorrelatorStatus::kSuccess: return "success";
@@ -73,8 +63,141 @@ Correlator::Correlator(CorrelatorOptions options) : opt_(std::move(options)) {
   // (2K+1)W/2, rounded up.
   lookback_ps_ = ((2 * std::int64_t{half_bins_} + 1) * opt_.bin_width_ps + 1) / 2;
   herald_lookback_ps_ = opt_.herald ? opt_.herald->max_delay_ps : 0;
-  counts_.assign(2 * static_cast<std::size_t>(half_bins_) + 1, 0);
+  autocorr_ = opt_.start_channel == opt_.stop_channel;
+  conditions_ = !opt_.start_windows.empty() || opt_.herald.has_value();
+  threads_ = std::max(1, opt_.threads > 0 ? opt_.threads : omp_get_max_threads());
+  hist_.assign(static_cast<std::size_t>(threads_), std::vector<std::uint64_t>(2 * static_cast<std::size_t>(half_bins_) + 1, 0));
 }
+
+namespace {
+
+// a - b, clamped to the int64 range (look-back limits near the ends of the time axis).
+inline std::int64_t sat_sub(std::int64_t a, std::int64_t b) {
+  std::int64_t r;
+  if (__builtin_sub_overflow(a, b, &r)) return b > 0 ? std::numeric_limits<std::int64_t>::min()
+                                                      : std::numeric_limits<std::int64_t>::max();
+  return r;
+}
+
+// Integer binning of a delay τ, |τ| <= L: bin k = floor((2τ + W) / 2W) + K, computed as
+// u / 2W with u = 2τ + W + 2WK >= -1 (u = -1 only just below the lowest bin). Division by the
+// constant 2W uses a precomputed reciprocal when every valid u fits in 32 bits (Lemire, Kaser
+// & Kurz, "Faster remainder by direct computation", Softw. Pract. Exp. 49 (2019) 953: for
+// 32-bit n and divisor d >= 2, floor(n/d) = high 64 bits of n·(⌊(2^64−1)/d⌋ + 1)); otherwise it
+// falls back to a 64-bit division. Either way the result is exact.
+struct Binner {
+  std::int64_t offset;  // W + 2WK
+  std::uint64_t limit;  // 2W(2K+1): valid u are [0, limit)
+  std::uint64_t divisor;
+  std::uint64_t magic;  // 0 if the 64-bit division is needed
+  Binner(std::int64_t W, std::int64_t K)
+      : offset(W + 2 * W * K),
+        limit(static_cast<std::uint64_t>(2 * W * (2 * K + 1))),
+        divisor(static_cast<std::uint64_t>(2 * W)),
+        magic(limit <= (std::uint64_t{1} << 32) ? ~std::uint64_t{0} / divisor + 1 : 0) {}
+  template <bool kFast>
+  void add(std::uint64_t* h, std::int64_t two_tau) const {
+    const auto u = static_cast<std::uint64_t>(two_tau + offset);
+    if (u >= limit) return;  // also catches u = -1
+    if constexpr (kFast) {
+      __extension__ using u128 = unsigned __int128;
+      ++h[static_cast<std::uint64_t>((static_cast<u128>(magic) * u) >> 64)];
+    } else {
+      ++h[u / divisor];
+    }
+  }
+};
+
+// Number of sentinels (INT64_MAX) behind each lane during a sweep, so the pointer steps below
+// may look ahead without bounds checks.
+constexpr std::size_t kSentinels = 4;
+
+// The two pointers of a sweep move forward by a small random number of places per tag (about
+// the rate ratio of the lanes): a `while` loop mispredicts almost every time. Instead four
+// comparisons are evaluated independently and summed (the elements that pass form a prefix,
+// the lane being sorted); only a run longer than four falls through to the loop.
+inline std::size_t advance_le(const std::int64_t* v, std::size_t i, std::int64_t t) {
+  std::size_t c = static_cast<std::size_t>(v[i] <= t) + static_cast<std::size_t>(v[i + 1] <= t) +
+                  static_cast<std::size_t>(v[i + 2] <= t) + static_cast<std::size_t>(v[i + 3] <= t);
+  i += c;
+  while (c == 4) {
+    c = static_cast<std::size_t>(v[i] <= t) + static_cast<std::size_t>(v[i + 1] <= t) +
+        static_cast<std::size_t>(v[i + 2] <= t) + static_cast<std::size_t>(v[i + 3] <= t);
+    i += c;
+  }
+  return i;
+}
+inline std::size_t advance_lt(const std::int64_t* v, std::size_t i, std::int64_t t) {
+  std::size_t c = static_cast<std::size_t>(v[i] < t) + static_cast<std::size_t>(v[i + 1] < t) +
+                  static_cast<std::size_t>(v[i + 2] < t) + static_cast<std::size_t>(v[i + 3] < t);
+  i += c;
+  while (c == 4) {
+    c = static_cast<std::size_t>(v[i] < t) + static_cast<std::size_t>(v[i + 1] < t) +
+        static_cast<std::size_t>(v[i + 2] < t) + static_cast<std::size_t>(v[i + 3] < t);
+    i += c;
+  }
+  return i;
+}
+
+// Stop sweep of a cross-correlation: every new stop x pairs with the starts y at
+// t_x − L <= t_y <= t_x (τ = t_x − t_y >= 0).
+template <bool kCond, bool kFast>
+void sweep_stops(const std::int64_t* pt, std::size_t a, std::size_t b, const std::int64_t* st,
+                 const std::uint8_t* su, std::size_t ns, std::int64_t L, const Binner& bin, std::uint64_t* h) {
+  if (a >= b) return;
+  std::size_t lo = static_cast<std::size_t>(std::lower_bound(st, st + ns, sat_sub(pt[a], L)) - st);
+  std::size_t hi = static_cast<std::size_t>(std::upper_bound(st, st + ns, pt[a]) - st);
+  for (std::size_t x = a; x < b; ++x) {
+    const std::int64_t t = pt[x];
+    const std::int64_t lim = sat_sub(t, L);
+    hi = advance_le(st, hi, t);    // sentinels stop it at ns
+    lo = advance_lt(st, lo, lim);  // st[hi] > t >= lim stops it at hi
+    for (std::size_t y = lo; y < hi; ++y) {
+      if (kCond && !su[y]) continue;
+      bin.template add<kFast>(h, 2 * (t - st[y]));
+    }
+  }
+}
+
+// Start sweep of a cross-correlation: every new start x that passed the conditions pairs with
+// the stops y at t_x − L <= t_y < t_x (τ = t_y − t_x < 0).
+template <bool kCond, bool kFast>
+void sweep_starts(const std::int64_t* st, const std::uint8_t* su, std::size_t a, std::size_t b,
+                  const std::int64_t* pt, std::size_t np, std::int64_t L, const Binner& bin, std::uint64_t* h) {
+  if (a >= b) return;
+  std::size_t lo = static_cast<std::size_t>(std::lower_bound(pt, pt + np, sat_sub(st[a], L)) - pt);
+  std::size_t hi = static_cast<std::size_t>(std::lower_bound(pt, pt + np, st[a]) - pt);
+  for (std::size_t x = a; x < b; ++x) {
+    const std::int64_t t = st[x];
+    const std::int64_t lim = sat_sub(t, L);
+    hi = advance_lt(pt, hi, t);
+    lo = advance_lt(pt, lo, lim);
+    if (kCond && !su[x]) continue;
+    for (std::size_t y = lo; y < hi; ++y) bin.template add<kFast>(h, 2 * (pt[y] - t));
+  }
+}
+
+// Autocorrelation: every new tag x pairs with the earlier tags y (stream order) at
+// t_y >= t_x − L; (start y, stop x) counts at +d if y passed the conditions, (start x, stop y)
+// at −d if x did.
+template <bool kCond, bool kFast>
+void sweep_auto(const std::int64_t* st, const std::uint8_t* su, std::size_t a, std::size_t b, std::int64_t L,
+                const Binner& bin, std::uint64_t* h) {
+  if (a >= b) return;
+  std::size_t lo = static_cast<std::size_t>(std::lower_bound(st, st + a, sat_sub(st[a], L)) - st);
+  for (std::size_t x = a; x < b; ++x) {
+    const std::int64_t t = st[x];
+    const std::int64_t lim = sat_sub(t, L);
+    lo = advance_lt(st, lo, lim);  // st[x] = t > lim (L >= 1) stops it at x
+    for (std::size_t y = lo; y < x; ++y) {
+      const std::int64_t d2 = 2 * (t - st[y]);
+      if (!kCond || su[y]) bin.template add<kFast>(h, d2);
+      if (!kCond || su[x]) bin.template add<kFast>(h, -d2);
+    }
+  }
+}
+
+}  // namespace
 
 template <class Ch>
 void Correlator::ingest(std::span<const std::int64_t> time_ps, std::span<const Ch> channel) {
@@ -82,187 +205,199 @@ void Correlator::ingest(std::span<const std::int64_t> time_ps, std::span<const C
   if (time_ps.size() != channel.size())
     throw InputError("correlator: chunk has " + std::to_string(time_ps.size()) + " times but " +
                      std::to_string(channel.size()) + " channels");
-  if (time_ps.empty()) return;
-  std::int64_t prev = last_time_ ? *last_time_ : std::numeric_limits<std::int64_t>::min();
-  const int herald_ch = opt_.herald ? opt_.herald->channel : -1;
-  for (std::size_t i = 0; i < time_ps.size(); ++i) {
-    const std::int64_t t = time_ps[i];
-    if (t < prev)
-      throw InputError("correlator: tags not sorted in time: tag " + std::to_string(n_tags_ + i) + " at " +
-                       std::to_string(t) + " ps follows " + std::to_string(prev) + " ps");
-    prev = t;
-    const int ch = static_cast<int>(channel[i]);
-    std::uint8_t k = 0;
-    if (ch == opt_.start_channel) k |= kStart;
-    if (ch == opt_.stop_channel) k |= kStop;
-    if (ch == herald_ch) k |= kHerald;
-    if (k) {
-      time_.push_back(t);
-      kind_.push_back(k);
-      used_.push_back(0);
+  const std::size_t n = time_ps.size();
+  if (n == 0) return;
+  const std::int64_t* t = time_ps.data();
+  const Ch* c = channel.data();
+
+  // Order check without branches in the loop; the failing tag is located only on failure.
+  const std::int64_t prev0 = last_time_ ? *last_time_ : std::numeric_limits<std::int64_t>::min();
+  bool unsorted = t[0] < prev0;
+  for (std::size_t i = 1; i < n; ++i) unsorted |= t[i] < t[i - 1];
+  if (unsorted) {
+    std::int64_t prev = prev0;
+    for (std::size_t i = 0; i < n; prev = t[i], ++i)
+      if (t[i] < prev)
+        throw InputError("correlator: tags not sorted in time: tag " + std::to_string(n_tags_ + i) + " at " +
+                         std::to_string(t[i]) + " ps follows " + std::to_string(prev) + " ps");
+  }
+
+  // Split by channel into the lanes: every tag is written to each lane's next slot and the
+  // slot advances only if the channel matches (no data-dependent branches).
+  const int cs = opt_.start_channel, cp = opt_.stop_channel, ch = opt_.herald ? opt_.herald->channel : -1;
+  const std::size_t s0 = start_.time.size(), p0 = stop_.time.size(), h0 = herald_.time.size();
+  start_.time.resize(s0 + n);
+  std::int64_t* st = start_.time.data() + s0;
+  std::size_t ns = 0, np = 0, nh = 0;
+  if (autocorr_ && !opt_.herald) {
+    for (std::size_t i = 0; i < n; ++i) {
+      st[ns] = t[i];
+      ns += static_cast<int>(c[i]) == cs;
+    }
+  } else if (!opt_.herald) {
+    stop_.time.resize(p0 + n);
+    std::int64_t* pt = stop_.time.data() + p0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const int ci = static_cast<int>(c[i]);
+      st[ns] = t[i];
+      pt[np] = t[i];
+      ns += ci == cs;
+      np += ci == cp;
+    }
+  } else {
+    if (!autocorr_) stop_.time.resize(p0 + n);
+    herald_.time.resize(h0 + n);
+    std::int64_t* pt = autocorr_ ? nullptr : stop_.time.data() + p0;
+    std::int64_t* ht = herald_.time.data() + h0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const int ci = static_cast<int>(c[i]);
+      st[ns] = t[i];
+      ns += ci == cs;
+      if (pt) {
+        pt[np] = t[i];
+        np += ci == cp;
+      }
+      ht[nh] = t[i];
+      nh += ci == ch;
     }
   }
-  if (!first_time_) first_time_ = time_ps.front();
-  last_time_ = time_ps.back();
-  n_tags_ += time_ps.size();
-  if (time_.empty()) return;
-  // Hold back the tags that share the newest time stamp: a later chunk may hold more tags of
-  // that instant, and ties must be processed together (heralds with zero delay).
-  const auto ready = static_cast<std::size_t>(
-      std::lower_bound(time_.begin(), time_.end(), time_.back()) - time_.begin());
-  if (ready > n_done_) {
-    process(ready);
-    trim();
-  }
+  start_.time.resize(s0 + ns);
+  if (!autocorr_) stop_.time.resize(p0 + np);
+  if (opt_.herald) herald_.time.resize(h0 + nh);
+  if (conditions_) start_.used.resize(start_.time.size(), 0);
+  n_start_seen_ += ns;
+  n_stop_ += autocorr_ ? ns : np;
+  n_herald_ += nh;
+  if (!first_time_) first_time_ = t[0];
+  last_time_ = t[n - 1];
+  n_tags_ += n;
+  peak_buffered_ = std::max(peak_buffered_, start_.time.size() + stop_.time.size() + herald_.time.size());
+
+  // Tags at the newest time stamp are held back: a later chunk may hold more tags of that
+  // instant, and ties must be processed together (pairs at τ = 0, heralds with zero delay).
+  process(t[n - 1]);
+  trim(t[n - 1]);
 }
 
 void Correlator::add_chunk(std::span<const std::int64_t> t, std::span<const int> c) { ingest(t, c); }
 void Correlator::add_chunk(std::span<const std::int64_t> t, std::span<const std::uint8_t> c) { ingest(t, c); }
 void Correlator::add_chunk(std::span<const std::int64_t> t, std::span<const std::uint16_t> c) { ingest(t, c); }
 
-void Correlator::process(std::size_t n_ready) {
-  const std::size_t n0 = n_done_;
-  // 1. Conditions on the new start tags, and singles counts.
-  std::vector<std::int64_t> herald_times;
-  if (opt_.herald) {
-    for (std::size_t i = 0; i < n_ready; ++i)
-      if (kind_[i] & kHerald) herald_times.push_back(time_[i]);
-  }
+void Correlator::apply_conditions(std::size_t s_end) {
   const auto& win = opt_.start_windows;
-  for (std::size_t i = n0; i < n_ready; ++i) {
-    const std::uint8_t k = kind_[i];
-    if (k & kStop) ++n_stop_;
-    if (k & kHerald) ++n_herald_;
-    if (!(k & kStart)) continue;
-    ++n_start_seen_;
-    const std::int64_t t = time_[i];
+  const auto& ht = herald_.time;
+  for (std::size_t i = start_.done; i < s_end; ++i) {
+    const std::int64_t t = start_.time[i];
     bool ok = true;
     if (!win.empty()) {
-      auto it = std::upper_bound(win.begin(), win.end(), t,
-                                 [](std::int64_t v, const TimeWindow& w) { return v < w.begin_ps; });
-      ok = it != win.begin() && t < std::prev(it)->end_ps;
+      while (window_idx_ < win.size() && win[window_idx_].end_ps <= t) ++window_idx_;
+      ok = window_idx_ < win.size() && win[window_idx_].begin_ps <= t;
     }
-    if (ok && opt_.herald) {
-      auto it = std::lower_bound(herald_times.begin(), herald_times.end(), t - opt_.herald->max_delay_ps);
-      ok = it != herald_times.end() && *it <= t - opt_.herald->min_delay_ps;
+    if (opt_.herald) {
+      // Delays t − h compared as unsigned differences (exact for h <= t, no overflow).
+      const auto delay = [t](std::int64_t h) { return static_cast<std::uint64_t>(t) - static_cast<std::uint64_t>(h); };
+      const auto max_d = static_cast<std::uint64_t>(opt_.herald->max_delay_ps);
+      const auto min_d = static_cast<std::uint64_t>(opt_.herald->min_delay_ps);
+      while (herald_lo_ < ht.size() && ht[herald_lo_] < t && delay(ht[herald_lo_]) > max_d) ++herald_lo_;
+      const bool found = herald_lo_ < ht.size() && ht[herald_lo_] <= t && delay(ht[herald_lo_]) >= min_d;
+      ok = ok && found;
     }
-    used_[i] = ok ? 1 : 0;
-    if (ok) ++n_start_used_;
+    start_.used[i] = ok ? 1 : 0;
+    n_start_used_ += ok ? 1 : 0;
   }
-
-  // 2. Start and stop lists over the buffer (positions are buffer indices, increasing).
-  const bool autocorr = opt_.start_channel == opt_.stop_channel;
-  std::vector<std::int64_t> s_time, p_time;
-  std::vector<std::uint32_t> s_pos, p_pos;
-  std::vector<std::uint8_t> s_used;
-  FLYBY_CHECK(n_ready < std::numeric_limits<std::uint32_t>::max(), "correlator buffer exceeds 2^32 tags");
-  for (std::size_t i = 0; i < n_ready; ++i) {
-    if (kind_[i] & kStart) {
-      s_time.push_back(time_[i]);
-      s_pos.push_back(static_cast<std::uint32_t>(i));
-      s_used.push_back(used_[i]);
-    }
-    if (!autocorr && (kind_[i] & kStop)) {
-      p_time.push_back(time_[i]);
-      p_pos.push_back(static_cast<std::uint32_t>(i));
-    }
-  }
-
-  const std::int64_t W = opt_.bin_width_ps;
-  const std::int64_t K = half_bins_;
-  const std::int64_t L = lookback_ps_;
-  const std::size_t nbins = counts_.size();
-  auto bin_of = [W, K](std::int64_t tau) { return floor_div(2 * tau + W, 2 * W) + K; };
-
-  // 3. Pair sweep. X is the list whose new elements are the later tag of a pair; Y the list of
-  // earlier partners. Each thread takes a contiguous share of X's new elements.
-  auto sweep = [&](const std::vector<std::int64_t>& xt, const std::vector<std::uint32_t>& xp,
-                   const std::vector<std::int64_t>& yt, const std::vector<std::uint32_t>& yp,
-                   auto&& count_pair, std::vector<std::vector<std::uint64_t>>& hist) {
-    const std::size_t x0 = static_cast<std::size_t>(std::lower_bound(xp.begin(), xp.end(), n0) - xp.begin());
-    const std::size_t nx = xt.size() - x0;
-    if (nx == 0) return;
-    const int nthreads = static_cast<int>(
-        std::min<std::size_t>(hist.size(), std::max<std::size_t>(1, nx / opt_.min_tags_per_thread)));
-#pragma omp parallel num_threads(nthreads)
-    {
-      const int tid = omp_get_thread_num();
-      const int nt = omp_get_num_threads();
-      const std::size_t a = x0 + nx * static_cast<std::size_t>(tid) / static_cast<std::size_t>(nt);
-      const std::size_t b = x0 + nx * static_cast<std::size_t>(tid + 1) / static_cast<std::size_t>(nt);
-      auto& h = hist[static_cast<std::size_t>(tid)];
-      if (a < b) {
-        std::size_t lo = static_cast<std::size_t>(
-            std::lower_bound(yt.begin(), yt.end(), xt[a] - L) - yt.begin());
-        std::size_t hi = static_cast<std::size_t>(std::lower_bound(yp.begin(), yp.end(), xp[a]) - yp.begin());
-        for (std::size_t x = a; x < b; ++x) {
-          const std::int64_t t = xt[x];
-          while (lo < yt.size() && yt[lo] < t - L) ++lo;
-          while (hi < yp.size() && yp[hi] < xp[x]) ++hi;
-          for (std::size_t y = lo; y < hi; ++y) count_pair(h, x, y, t - yt[y]);
-        }
-      }
-    }
-  };
-
-  int nthreads = opt_.threads > 0 ? opt_.threads : omp_get_max_threads();
-  std::vector<std::vector<std::uint64_t>> hist(static_cast<std::size_t>(std::max(1, nthreads)),
-                                               std::vector<std::uint64_t>(nbins, 0));
-  auto add = [&](std::vector<std::uint64_t>& h, std::int64_t tau) {
-    const std::int64_t b = bin_of(tau);
-    if (b >= 0 && b < static_cast<std::int64_t>(nbins)) ++h[static_cast<std::size_t>(b)];
-  };
-  if (autocorr) {
-    // Later tag x, earlier tag y of the same channel: (start y, stop x) at +d needs y used;
-    // (start x, stop y) at −d needs x used.
-    sweep(s_time, s_pos, s_time, s_pos,
-          [&](std::vector<std::uint64_t>& h, std::size_t x, std::size_t y, std::int64_t d) {
-            if (s_used[y]) add(h, d);
-            if (s_used[x]) add(h, -d);
-          },
-          hist);
-  } else {
-    // Later stop x, earlier start y: τ = t_x − t_y >= 0.
-    sweep(p_time, p_pos, s_time, s_pos,
-          [&](std::vector<std::uint64_t>& h, std::size_t, std::size_t y, std::int64_t d) {
-            if (s_used[y]) add(h, d);
-          },
-          hist);
-    // Later start x, earlier stop y: τ = t_y − t_x <= 0.
-    sweep(s_time, s_pos, p_time, p_pos,
-          [&](std::vector<std::uint64_t>& h, std::size_t x, std::size_t, std::int64_t d) {
-            if (s_used[x]) add(h, -d);
-          },
-          hist);
-  }
-  for (const auto& h : hist)
-    for (std::size_t b = 0; b < nbins; ++b) counts_[b] += h[b];
-  n_done_ = n_ready;
 }
 
-void Correlator::trim() {
-  // Future tags come no earlier than the first unprocessed tag (or the newest processed one).
-  const std::int64_t t_next = n_done_ < time_.size() ? time_[n_done_] : time_.back();
-  const std::int64_t keep_after = t_next - std::max(lookback_ps_, herald_lookback_ps_);
-  const auto drop = static_cast<std::size_t>(
-      std::lower_bound(time_.begin(), time_.begin() + static_cast<std::ptrdiff_t>(n_done_), keep_after) -
-      time_.begin());
-  if (drop == 0) return;
-  time_.erase(time_.begin(), time_.begin() + static_cast<std::ptrdiff_t>(drop));
-  kind_.erase(kind_.begin(), kind_.begin() + static_cast<std::ptrdiff_t>(drop));
-  used_.erase(used_.begin(), used_.begin() + static_cast<std::ptrdiff_t>(drop));
-  n_done_ -= drop;
+void Correlator::process(std::int64_t t_cut) {
+  // Tags before t_cut are final: all later tags come at or after it.
+  auto ready = [t_cut, this](const Lane& l) {
+    if (finished_) return l.time.size();
+    return static_cast<std::size_t>(
+        std::lower_bound(l.time.begin() + static_cast<std::ptrdiff_t>(l.done), l.time.end(), t_cut) - l.time.begin());
+  };
+  const std::size_t s_end = ready(start_);
+  const std::size_t p_end = autocorr_ ? 0 : ready(stop_);
+  if (conditions_) apply_conditions(s_end);
+  else n_start_used_ += s_end - start_.done;
+
+  const std::int64_t L = lookback_ps_;
+  const Binner bin(opt_.bin_width_ps, half_bins_);
+  const std::size_t ns = start_.time.size();
+  const std::size_t np = stop_.time.size();
+  start_.time.resize(ns + kSentinels, std::numeric_limits<std::int64_t>::max());
+  stop_.time.resize(np + kSentinels, std::numeric_limits<std::int64_t>::max());
+  const std::int64_t* st = start_.time.data();
+  const std::uint8_t* su = start_.used.data();
+  const std::int64_t* pt = stop_.time.data();
+  const std::size_t s_new = s_end - start_.done;
+  const std::size_t p_new = autocorr_ ? 0 : p_end - stop_.done;
+  const std::size_t work = s_new + p_new;
+  if (work > 0) {
+    const int nt = static_cast<int>(std::min<std::size_t>(
+        static_cast<std::size_t>(threads_), std::max<std::size_t>(1, work / opt_.min_tags_per_thread)));
+    const std::size_t sa = start_.done, pa = stop_.done;
+    auto run = [&](auto cond, auto fast) {
+      constexpr bool kC = decltype(cond)::value, kF = decltype(fast)::value;
+#pragma omp parallel num_threads(nt) if (nt > 1)
+      {
+        // Each thread takes a contiguous share of the new tags of each lane.
+        const auto tid = static_cast<std::size_t>(omp_get_thread_num());
+        const auto nth = static_cast<std::size_t>(omp_get_num_threads());
+        std::uint64_t* h = hist_[tid].data();
+        const std::size_t s_a = sa + s_new * tid / nth, s_b = sa + s_new * (tid + 1) / nth;
+        if (autocorr_) {
+          sweep_auto<kC, kF>(st, su, s_a, s_b, L, bin, h);
+        } else {
+          const std::size_t p_a = pa + p_new * tid / nth, p_b = pa + p_new * (tid + 1) / nth;
+          sweep_stops<kC, kF>(pt, p_a, p_b, st, su, ns, L, bin, h);
+          sweep_starts<kC, kF>(st, su, s_a, s_b, pt, np, L, bin, h);
+        }
+      }
+    };
+    using T = std::true_type;
+    using F = std::false_type;
+    if (conditions_) bin.magic ? run(T{}, T{}) : run(T{}, F{});
+    else bin.magic ? run(F{}, T{}) : run(F{}, F{});
+  }
+  start_.time.resize(ns);
+  stop_.time.resize(np);
+  start_.done = s_end;
+  if (!autocorr_) stop_.done = p_end;
+}
+
+void Correlator::trim(std::int64_t t_cut) {
+  // Later tags are at or after t_cut; they reach back at most the look-back span.
+  auto drop_before = [](Lane& l, std::int64_t keep_from, bool has_used) {
+    const auto drop = static_cast<std::size_t>(
+        std::lower_bound(l.time.begin(), l.time.begin() + static_cast<std::ptrdiff_t>(l.done), keep_from) -
+        l.time.begin());
+    if (drop == 0) return drop;
+    l.time.erase(l.time.begin(), l.time.begin() + static_cast<std::ptrdiff_t>(drop));
+    if (has_used) l.used.erase(l.used.begin(), l.used.begin() + static_cast<std::ptrdiff_t>(drop));
+    l.done -= drop;
+    return drop;
+  };
+  const std::int64_t keep = sat_sub(t_cut, lookback_ps_);
+  drop_before(start_, keep, conditions_);
+  if (!autocorr_) drop_before(stop_, keep, false);
+  if (opt_.herald) {
+    herald_.done = herald_.time.size();
+    const std::size_t d = drop_before(herald_, sat_sub(t_cut, herald_lookback_ps_), false);
+    herald_lo_ = std::max(herald_lo_, d) - d;
+  }
 }
 
 CorrelationHistogram Correlator::finish() {
   FLYBY_CHECK(!finished_, "Correlator::finish() called twice");
-  if (time_.size() > n_done_) process(time_.size());
   finished_ = true;
+  process(0);
 
   CorrelationHistogram r;
   r.options = opt_;
   r.half_bins = half_bins_;
-  r.counts = counts_;
+  r.counts.assign(hist_[0].size(), 0);
+  for (const auto& h : hist_)
+    for (std::size_t b = 0; b < h.size(); ++b) r.counts[b] += h[b];
+  r.peak_buffered_tags = peak_buffered_;
   r.n_start_seen = n_start_seen_;
   r.n_start_used = n_start_used_;
   r.n_stop = n_stop_;
@@ -270,7 +405,7 @@ CorrelationHistogram Correlator::finish() {
   r.n_tags = n_tags_;
   if (opt_.duration_ps) r.duration_ps = *opt_.duration_ps;
   else if (first_time_) r.duration_ps = *last_time_ - *first_time_;
-  const std::size_t nb = counts_.size();
+  const std::size_t nb = r.counts.size();
   r.tau_ps.resize(nb);
   for (std::size_t b = 0; b < nb; ++b)
     r.tau_ps[b] = (static_cast<std::int64_t>(b) - half_bins_) * opt_.bin_width_ps;
@@ -293,7 +428,7 @@ CorrelationHistogram Correlator::finish() {
   r.g2.resize(nb);
   r.g2_err.resize(nb);
   for (std::size_t b = 0; b < nb; ++b) {
-    const double c = static_cast<double>(counts_[b]);
+    const double c = static_cast<double>(r.counts[b]);
     r.g2[b] = c / r.expected_counts_per_bin;
     r.g2_err[b] = std::sqrt(c) / r.expected_counts_per_bin;
   }
@@ -331,6 +466,7 @@ std::string CorrelationHistogram::full_report() const {
   std::uint64_t total = 0;
   for (auto c : counts) total += c;
   o << "  pairs counted " << total << "; g2 = counts / (N_start N_stop W / T)\n";
+  o << "  at most " << peak_buffered_tags << " tags buffered at once\n";
   return o.str();
 }
 

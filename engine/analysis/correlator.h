@@ -7,20 +7,48 @@
 // A start may be restricted to time windows and to a heralding condition (a click in another
 // channel shortly before it). The normalization is g2 = counts / (N_start N_stop W / T).
 //
-// Cost is linear in the number of tags plus the number of counted pairs (two-pointer sweep over
-// the sorted stream). Tags arrive in chunks of any size; only the tags within the look-back
-// span of the newest tag are kept between chunks, so records larger than memory stream through.
-// Inside a chunk the work is split over OpenMP threads; counts are integers, so the merged
-// histogram is exactly the same for any thread count and any chunking.
+// Cost is linear in the number of tags plus the number of counted pairs: each chunk is split
+// by channel into start, stop and herald lanes, then two-pointer sweeps over the sorted lanes
+// count the pairs with integer bin arithmetic. Tags arrive in chunks of any size; only the
+// tags within the look-back span of the newest tag are kept between chunks, so records larger
+// than memory stream through. Inside a chunk the sweeps are split over OpenMP threads with a
+// histogram per thread; counts are integers, so the summed histogram is exactly the same for
+// any thread count and any chunking.
 #pragma once
 
 #include <cstdint>
+#include <memory>
+#include <new>
+#include <utility>
 #include <optional>
 #include <span>
 #include <string>
 #include <vector>
 
 namespace flyby::analysis {
+
+namespace detail {
+// Allocator whose resize() leaves new elements uninitialized: the correlator's lanes grow by a
+// whole chunk and are then filled, so zeroing them first would be wasted memory traffic.
+template <class T>
+struct UninitAllocator : std::allocator<T> {
+  template <class U>
+  struct rebind {
+    using other = UninitAllocator<U>;
+  };
+  UninitAllocator() = default;
+  template <class U>
+  UninitAllocator(const UninitAllocator<U>&) noexcept {}
+  template <class U>
+  void construct(U* p) noexcept {
+    ::new (static_cast<void*>(p)) U;
+  }
+  template <class U, class... A>
+  void construct(U* p, A&&... a) {
+    ::new (static_cast<void*>(p)) U(std::forward<A>(a)...);
+  }
+};
+}  // namespace detail
 
 // A half-open interval [begin_ps, end_ps) of record time.
 struct TimeWindow {
@@ -78,6 +106,7 @@ struct CorrelationHistogram {
   std::uint64_t n_herald = 0;          // herald-channel tags (0 without a herald condition)
   std::uint64_t n_tags = 0;            // all tags seen, any channel
   std::int64_t duration_ps = 0;        // T used in the normalization
+  std::size_t peak_buffered_tags = 0;  // see Correlator::peak_buffered_tags()
   double expected_counts_per_bin = 0;  // N_start N_stop W / T
 
   std::string brief_report() const;
@@ -99,24 +128,39 @@ class Correlator {
   // Processes what is left and returns the histogram. The correlator is spent afterwards.
   CorrelationHistogram finish();
 
+  // Largest number of tags held in the correlator's buffers at any time so far (start, stop
+  // and herald tags within the look-back span plus the newest chunk's relevant tags). It does
+  // not grow with the record length, only with the chunk size and the rate × look-back span.
+  std::size_t peak_buffered_tags() const { return peak_buffered_; }
+
  private:
-  enum Kind : std::uint8_t { kStart = 1, kStop = 2, kHerald = 4 };
+  // Tags of one channel role kept between chunks: times in stream order, and for starts
+  // whether they passed the window/herald conditions. [0, done) are processed.
+  struct Lane {
+    std::vector<std::int64_t, detail::UninitAllocator<std::int64_t>> time;
+    std::vector<std::uint8_t> used;  // starts only, and only when conditions exist
+    std::size_t done = 0;
+  };
   template <class Ch>
   void ingest(std::span<const std::int64_t> time_ps, std::span<const Ch> channel);
-  void process(std::size_t n_ready);
-  void trim();
+  void process(std::int64_t t_cut);
+  void apply_conditions(std::size_t s_end);
+  void trim(std::int64_t t_cut);
 
   CorrelatorOptions opt_;
   int half_bins_ = 0;
   std::int64_t lookback_ps_ = 0;        // largest |τ| that can fall in a bin
   std::int64_t herald_lookback_ps_ = 0; // largest herald delay kept
-  std::vector<std::int64_t> time_;      // buffered relevant tags (carry + new)
-  std::vector<std::uint8_t> kind_;      // Kind bits per buffered tag
-  std::vector<std::uint8_t> used_;      // start tag passed the conditions (valid for processed tags)
-  std::size_t n_done_ = 0;              // buffered tags already processed (the carry)
-  std::vector<std::uint64_t> counts_;
+  bool autocorr_ = false;
+  bool conditions_ = false;             // windows or herald restrict the starts
+  Lane start_, stop_, herald_;          // stop_ unused for an autocorrelation
+  std::size_t herald_lo_ = 0;           // herald two-pointer (first herald not too old)
+  std::size_t window_idx_ = 0;          // first window that does not end before the newest start
+  int threads_ = 1;
+  std::vector<std::vector<std::uint64_t>> hist_;  // per-thread histograms, summed in finish()
   std::uint64_t n_start_seen_ = 0, n_start_used_ = 0, n_stop_ = 0, n_herald_ = 0, n_tags_ = 0;
   std::optional<std::int64_t> first_time_, last_time_;
+  std::size_t peak_buffered_ = 0;
   bool finished_ = false;
 };
 

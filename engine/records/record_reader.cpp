@@ -39,6 +39,7 @@ struct RecordReader::Impl {
 
   void open();
   void read_block(std::uint64_t first, std::size_t count, TagBlock& out);
+  void validate_slowly(std::uint64_t first, const TagBlock& out) const;
 };
 
 void RecordReader::Impl::open() {
@@ -164,9 +165,12 @@ void RecordReader::Impl::open() {
 
 void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagBlock& out) {
   silence_hdf5_errors();  // per thread: the reader may be used on another thread than it was made on
-  out.clear();
-  if (first >= n || count == 0) return;
+  if (first >= n || count == 0) {
+    out.clear();
+    return;
+  }
   count = static_cast<std::size_t>(std::min<std::uint64_t>(count, n - first));
+  // Resizing a block of the same size (the usual case in a sequential pass) costs nothing.
   out.time_ps.resize(count);
   out.channel.resize(count);
   try {
@@ -176,9 +180,28 @@ void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagB
     out.clear();
     fail(e.message);
   }
+  // Fast pass without data-dependent branches (this loop runs on every tag of every analysis);
+  // only a block that fails it is scanned again to name the first bad tag.
   const std::int64_t lo = header.start_ps;
   const std::int64_t span = header.duration_ps;
+  const auto ulo = static_cast<std::uint64_t>(lo), uspan = static_cast<std::uint64_t>(span);
+  const std::int64_t* t = out.time_ps.data();
+  const ChannelId* c = out.channel.data();
+  bool bad = false;
   for (std::size_t i = 0; i < count; ++i) {
+    // t >= lo makes the unsigned difference exact even where t - lo would overflow int64.
+    bad |= (t[i] < lo) | (static_cast<std::uint64_t>(t[i]) - ulo >= uspan) | (slot[c[i]] < 0);
+  }
+  for (std::size_t i = 1; i < count; ++i) bad |= t[i] < t[i - 1];
+  for (std::uint64_t k = (first + block_tags - 1) / block_tags; k * block_tags < first + count; ++k)
+    bad |= index[k] != t[k * block_tags - first];
+  if (bad) validate_slowly(first, out);
+}
+
+void RecordReader::Impl::validate_slowly(std::uint64_t first, const TagBlock& out) const {
+  const std::int64_t lo = header.start_ps;
+  const std::int64_t span = header.duration_ps;
+  for (std::size_t i = 0; i < out.size(); ++i) {
     const std::int64_t t = out.time_ps[i];
     const std::uint64_t tag = first + i;
     if (i > 0 && t < out.time_ps[i - 1]) {

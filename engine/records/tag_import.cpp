@@ -1,5 +1,5 @@
 // Text and binary import of measured time tags (see tag_import.h). Shared by both formats: the
-// channel map, the order check (or in-memory sort), "#@flyby" metadata of flyby's own CSV
+// channel map, the order check (or external sort), "#@flyby" metadata of flyby's own CSV
 // export, and the streaming RecordWriter.
 #include "engine/records/tag_import.h"
 
@@ -14,6 +14,7 @@
 
 #include "engine/common/errors.h"
 #include "engine/records/record_writer.h"
+#include "engine/records/tag_sorter.h"
 #include "engine/records/time_text.h"
 
 namespace flyby::records {
@@ -54,6 +55,10 @@ class TagSink {
       fail_plain("resolution must be a positive number of ps");
     }
     if (opt_.duration_ps && *opt_.duration_ps < 0) fail_plain("duration must not be negative");
+    if (opt_.sort) {
+      if (opt_.sort_run_tags < 2) fail_plain("sort run size must be at least 2 tags");
+      sorter_.emplace(output_, opt_.sort_run_tags);
+    }
   }
 
   [[noreturn]] void fail_plain(const std::string& msg) const { throw InputError(input_ + ": " + msg); }
@@ -147,13 +152,13 @@ class TagSink {
       if (!opt_.sort) {
         fail_at(where_prefix + std::to_string(where), "time " + std::to_string(t) + " ps is earlier than the previous tag (" +
                                                           std::to_string(last_time_) +
-                                                          " ps): the input is not sorted (pass --sort to sort it in memory)");
+                                                          " ps): the input is not sorted (pass --sort to sort it)");
       }
     }
     have_last_time_ = true;
     last_time_ = t;
-    if (opt_.sort) {
-      memory_.push_back({t, ch});
+    if (sorter_) {
+      sorter_->add(t, ch);
       return;
     }
     ensure_writer();
@@ -167,20 +172,10 @@ class TagSink {
 
   ImportSummary finish() {
     start();
-    if (opt_.sort) {
-      std::stable_sort(memory_.begin(), memory_.end(), [](const auto& a, const auto& b) { return a.first < b.first; });
+    if (sorter_) {
       ensure_writer();
-      TagBlock b;
-      b.reserve(std::min<std::size_t>(memory_.size(), 65536));
-      for (const auto& [t, c] : memory_) {
-        b.push_back(t, c);
-        if (b.size() == 65536) {
-          writer_->append(b);
-          b.clear();
-        }
-      }
-      writer_->append(b);
-      memory_.clear();
+      sorter_->finish([this](const TagBlock& b) { writer_->append(b); });
+      summary_.sort_runs = sorter_->runs();
     }
     if (!writer_ || writer_->tag_count() == 0) fail_plain("no time tags found");
     summary_.tags = writer_->tag_count();
@@ -231,7 +226,7 @@ class TagSink {
   std::optional<std::pair<std::string, ChannelId>> last_;
   RecordHeader header_;
   std::optional<RecordWriter> writer_;
-  std::vector<std::pair<std::int64_t, ChannelId>> memory_;
+  std::optional<TagSorter> sorter_;  // with --sort: bounded-memory external sort
   bool have_last_time_ = false;
   std::int64_t last_time_ = 0;
   ImportSummary summary_;
@@ -422,7 +417,10 @@ std::string ImportSummary::brief_report() const {
   std::ostringstream os;
   os << "imported " << tags << " tags in " << header.channels.size() << " channels";
   if (dropped) os << " (" << dropped << " unmapped tags dropped)";
-  if (!was_sorted) os << "; input was not sorted and has been sorted";
+  if (!was_sorted) {
+    os << "; input was not sorted and has been sorted";
+    if (sort_runs > 0) os << " (external merge of " << sort_runs << " runs)";
+  }
   os << "; window " << header.start_ps << " ps + " << header.duration_ps << " ps";
   return os.str();
 }

@@ -2,7 +2,7 @@
 // time and a channel column, or raw little-endian binary records with a user-described layout.
 // Nothing vendor-specific: the user says where the fields are and what unit the time has.
 //
-// Both readers stream (bounded memory) unless sorting is requested. Every problem of the input
+// Both readers stream with bounded memory, sorting too (an external merge sort). Every problem of the input
 // throws InputError with one line "<file>:<line or byte offset>: <problem>"; the output is then
 // never created (the writer's temporary file is removed).
 #pragma once
@@ -35,8 +35,12 @@ struct ImportOptions {
   // Unit of the time values ("ps", "ns", "us", "ms", "s" or a factor like "80.955ps"). For text
   // input it may come from the time column's header name (time_ps, time_ns, ...) instead.
   std::optional<std::string> time_unit;
-  // Sort the tags in memory (stable, by time) instead of refusing unsorted input.
+  // Sort the tags (stable, by time) instead of refusing unsorted input. Memory stays bounded:
+  // runs of sort_run_tags tags are sorted in memory and spilled to a hidden file next to the
+  // output, then merged (engine/records/tag_sorter.h).
   bool sort = false;
+  // Tags per in-memory sort run (16 bytes each; 2^24 = 256 MiB), >= 2.
+  std::size_t sort_run_tags = std::size_t{1} << 24;
   // Channel map; empty = automatic (from "#@flyby channel=" lines of a flyby export, else every
   // distinct token becomes a channel named after it, role detector).
   std::vector<ChannelMapping> channels;
@@ -91,6 +95,7 @@ struct ImportSummary {
   std::uint64_t dropped = 0;         // tags skipped (unmapped channel, with drop_unmapped)
   std::uint64_t input_records = 0;   // data lines or binary records read
   bool was_sorted = true;            // input already in time order
+  std::size_t sort_runs = 0;         // runs spilled to disk by the external sort (0: sorted in memory)
   RecordHeader header;               // as written
   std::string brief_report() const;
 };

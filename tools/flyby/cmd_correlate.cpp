@@ -12,6 +12,7 @@
 #include "engine/common/atomic_output.h"
 #include "engine/common/errors.h"
 #include "engine/common/provenance.h"
+#include "engine/records/block_prefetch.h"
 #include "engine/records/record_reader.h"
 #include "tools/flyby/commands.h"
 #include "tools/flyby/plot_runner.h"
@@ -105,7 +106,11 @@ void run_correlate(const CorrelateArgs& a) {
 
   analysis::Correlator corr(o);
   records::TagBlock block;
-  while (reader.read_next(block, a.block_tags)) corr.add_chunk(block.time_ps, block.channel);
+  {
+    // The next block is read on a background thread while this one is correlated.
+    records::BlockPrefetcher ahead(reader, a.block_tags);
+    while (ahead.next(block)) corr.add_chunk(block.time_ps, block.channel);
+  }
   const auto r = corr.finish();
 
   const auto prov = current_provenance();
@@ -205,7 +210,7 @@ void register_correlate(CLI::App& app) {
   c->add_option("--herald-min-ns", args->herald_min_ns, "shortest herald-to-start delay in ns (default 0)");
   c->add_option("--herald-max-ns", args->herald_max_ns, "longest herald-to-start delay in ns");
   c->add_option("--threads", args->threads, "OpenMP threads (default: OMP_NUM_THREADS or all cores)");
-  c->add_option("--block-tags", args->block_tags, "tags read per block (memory use ~ 9 bytes per tag)");
+  c->add_option("--block-tags", args->block_tags, "tags read per block (memory use ~ 27 bytes per tag: three blocks in flight)");
   c->callback([args] { run_correlate(*args); });
 }
 

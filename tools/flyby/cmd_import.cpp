@@ -21,6 +21,7 @@ struct ImportArgs {
   std::string time_unit;
   std::vector<std::string> channels;
   bool drop_unmapped = false, sort = false;
+  std::size_t sort_run_tags = std::size_t{1} << 24;
   std::optional<double> resolution_ps;
   std::optional<std::int64_t> start_ps, duration_ps;
 };
@@ -39,6 +40,7 @@ void run_import(const ImportArgs& a) {
   ImportOptions common;
   if (!a.time_unit.empty()) common.time_unit = a.time_unit;
   common.sort = a.sort;
+  common.sort_run_tags = a.sort_run_tags;
   common.drop_unmapped = a.drop_unmapped;
   common.resolution_ps = a.resolution_ps;
   common.start_ps = a.start_ps;
@@ -117,7 +119,10 @@ void register_import(CLI::App& app) {
                 "Map a channel value to a channel: TOKEN=NAME[:ROLE], ROLE detector (default), herald or marker; repeat "
                 "per channel. Without it every distinct value becomes a channel named after it");
   c->add_flag("--drop-unmapped", args->drop_unmapped, "Skip tags whose channel is not in the --channel map");
-  c->add_flag("--sort", args->sort, "Sort unsorted input in memory (default: refuse it)");
+  c->add_flag("--sort", args->sort,
+              "Sort unsorted input (default: refuse it); memory stays bounded: runs are sorted in memory, spilled to a "
+              "hidden file next to the output and merged");
+  c->add_option("--sort-run-tags", args->sort_run_tags, "Tags per in-memory sort run (16 bytes each)")->capture_default_str();
   c->add_option("--resolution-ps", args->resolution_ps, "Tagger resolution in ps (default 1, or from a flyby export)");
   c->add_option("--start-ps", args->start_ps, "Start of the acquisition window, ps (with --duration-ps)");
   c->add_option("--duration-ps", args->duration_ps, "Length of the acquisition window, ps (default: first to last tag)");
