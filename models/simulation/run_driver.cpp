@@ -42,7 +42,8 @@ constexpr std::uint64_t kEmptyBit = std::uint64_t(1) << 62;
 // put all its photons in memory at once. Piece p ≥ 1 of gap g uses index 2⁶² | p·2⁴⁰ | g.
 constexpr double kGapPieceUs = 1e4;
 constexpr int kGapPieceShift = 40;
-// Automatic block size: about this many blocks per rank (load balance over ranks) ...
+// Automatic blocks under MPI: about this many blocks per rank of about equal estimated cost
+// (load balance over ranks) ...
 constexpr std::size_t kBlocksPerRank = 8;
 // ... with at most this many items per block (bounds the photons held in memory).
 constexpr std::size_t kMaxBlockItems = 1024;
@@ -55,6 +56,7 @@ struct Item {
   double start_us = 0.0, end_us = 0.0;
   std::uint64_t stream = 0;
   std::uint64_t order = 0;            // trajectory index, or trajectories + piece index
+  double cost = 0.0;                  // rough relative cost (duration × dimension), for block sizes
   bool empty_piece = false;
   std::size_t cluster = 0;            // trajectory: index into Plan::clusters
   std::optional<std::size_t> member;  // fallback: the one member simulated
@@ -223,6 +225,7 @@ Plan make_plan(const config::CheckedScenario& s, const ClusterModelBuilder& buil
       t.end_us = std::min(c.span.end_us, D);
       t.cluster = ci;
       t.stream = plan.arrivals[c.members.front().atom].id;
+      t.cost = std::max(0.0, t.end_us - t.start_us) * dim;
       traj.push_back(t);
     } else {
       ++sum.fallback_clusters;
@@ -233,6 +236,7 @@ Plan make_plan(const config::CheckedScenario& s, const ClusterModelBuilder& buil
         t.cluster = ci;
         t.member = m;
         t.stream = kFallbackBit | plan.arrivals[c.members[m].atom].id;
+        t.cost = std::max(0.0, t.end_us - t.start_us) * mode_dim * builder.atom_dimension;
         traj.push_back(t);
       }
     }
@@ -269,6 +273,7 @@ Plan make_plan(const config::CheckedScenario& s, const ClusterModelBuilder& buil
         it.end_us = std::min(a + kGapPieceUs, gaps[g].second);
         it.stream = kEmptyBit | (p << kGapPieceShift) | g;
         it.order = traj.size() + pieces.size();
+        it.cost = 1e-3 * (it.end_us - it.start_us);  // Poisson clicks: far cheaper than a trajectory
         pieces.push_back(it);
       }
     }
@@ -282,14 +287,30 @@ Plan make_plan(const config::CheckedScenario& s, const ClusterModelBuilder& buil
                              [](const Item& x, const Item& y) { return x.start_us < y.start_us; }),
               "trajectories are not in order of their start time");
 
-  // Blocks: consecutive runs of items.
+  // Blocks: consecutive runs of items — `block_items` each when given; else at most
+  // kMaxBlockItems, and under MPI also cut at about 1/(ranks·kBlocksPerRank) of the estimated
+  // cost (a trajectory's cost grows with its duration and dimension), so that the round-robin
+  // blocks give the ranks similar work. The cut never changes the result.
   const std::size_t n = plan.items.size();
-  std::size_t per = block_items;
-  if (per == 0) {
-    per = ranks > 1 ? (n + std::size_t(ranks) * kBlocksPerRank - 1) / (std::size_t(ranks) * kBlocksPerRank) : n;
-    per = std::clamp<std::size_t>(per, 1, kMaxBlockItems);
+  if (block_items > 0) {
+    for (std::size_t i = 0; i < n; i += block_items) plan.block_begin.push_back(i);
+  } else {
+    double total_cost = 0.0;
+    for (const auto& it : plan.items) total_cost += it.cost;
+    const double target = ranks > 1 && total_cost > 0.0 ? total_cost / double(std::size_t(ranks) * kBlocksPerRank)
+                                                        : std::numeric_limits<double>::infinity();
+    double acc = 0.0;
+    std::size_t count = 0;
+    for (std::size_t i = 0; i < n; ++i) {
+      if (count == 0) plan.block_begin.push_back(i);
+      acc += plan.items[i].cost;
+      ++count;
+      if (count >= kMaxBlockItems || acc >= target) {
+        acc = 0.0;
+        count = 0;
+      }
+    }
   }
-  for (std::size_t i = 0; i < n; i += per) plan.block_begin.push_back(i);
   plan.block_begin.push_back(n);
   if (plan.block_begin.size() == 1) plan.block_begin.insert(plan.block_begin.begin(), 0);  // one empty block
   sum.blocks = plan.blocks();
