@@ -44,6 +44,12 @@ void send_request(int rank, bool proceed) {
   check(MPI_Send(&flag, 1, MPI_INT, rank, kRequestTag, MPI_COMM_WORLD), "send_request");
 }
 
+bool block_waiting(int rank) {
+  int flag = 0;
+  check(MPI_Iprobe(rank, kSizeTag, MPI_COMM_WORLD, &flag, MPI_STATUS_IGNORE), "block_waiting");
+  return flag != 0;
+}
+
 std::vector<char> receive_block(int rank) {
   unsigned long long n = 0;
   check(MPI_Recv(&n, 1, MPI_UNSIGNED_LONG_LONG, rank, kSizeTag, MPI_COMM_WORLD, MPI_STATUS_IGNORE), "receive_block");
@@ -54,6 +60,12 @@ std::vector<char> receive_block(int rank) {
           "receive_block");
   }
   return bytes;
+}
+
+bool request_waiting() {
+  int flag = 0;
+  check(MPI_Iprobe(0, kRequestTag, MPI_COMM_WORLD, &flag, MPI_STATUS_IGNORE), "request_waiting");
+  return flag != 0;
 }
 
 bool wait_for_request() {
@@ -75,7 +87,15 @@ void send_block(const std::vector<char>& bytes) {
 
 RankInfo current_ranks() { return {}; }
 void send_request(int, bool) { throw InternalError("send_request without MPI"); }
+bool block_waiting(int) { throw InternalError("block_waiting without MPI"); }
 std::vector<char> receive_block(int) { throw InternalError("receive_block without MPI"); }
+bool request_waiting() { throw InternalError("request_waiting without MPI"); }
+bool request_waiting() {
+  int flag = 0;
+  check(MPI_Iprobe(0, kRequestTag, MPI_COMM_WORLD, &flag, MPI_STATUS_IGNORE), "request_waiting");
+  return flag != 0;
+}
+
 bool wait_for_request() { throw InternalError("wait_for_request without MPI"); }
 void send_block(const std::vector<char>&) { throw InternalError("send_block without MPI"); }
 

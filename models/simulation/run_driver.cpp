@@ -14,8 +14,10 @@
 #include <chrono>
 #include <cmath>
 #include <cstring>
+#include <deque>
 #include <exception>
 #include <limits>
+#include <map>
 #include <mutex>
 #include <nlohmann/json.hpp>
 #include <set>
@@ -47,6 +49,8 @@ constexpr int kGapPieceShift = 40;
 constexpr std::size_t kBlocksPerRank = 8;
 // ... with at most this many items per block (bounds the photons held in memory).
 constexpr std::size_t kMaxBlockItems = 1024;
+// Finished blocks a rank may hold ahead of rank 0's requests (evens out unequal blocks).
+constexpr std::size_t kBlocksAhead = 4;
 
 std::int64_t to_ps(double t_us) { return std::llround(t_us * 1e6); }
 
@@ -412,23 +416,38 @@ std::string message_of(const std::exception_ptr& e) {
   }
 }
 
-// Worker rank: computes its blocks (b ≡ rank mod size) in order and hands each to rank 0 when
-// asked. Returns false when rank 0 told it to stop; rethrows its own error after reporting it.
+// Worker rank: computes its blocks (b ≡ rank mod size) in order, up to kBlocksAhead ahead of
+// rank 0's requests, and hands each to rank 0 when asked. Returns false when rank 0 told it to
+// stop; after an error it computes nothing more and rethrows the error once it has reported it.
 bool worker_loop(const BlockContext& c, RankInfo rk) {
-  for (std::size_t b = std::size_t(rk.rank); b < c.plan.blocks(); b += std::size_t(rk.size)) {
+  struct Ready {
     std::vector<char> bytes;
-    std::exception_ptr err;
-    try {
-      bytes = encode_results(run_block(c, b, {}));
-    } catch (...) {
-      err = std::current_exception();
-      bytes = encode_error(status_of(err), message_of(err));
+    std::exception_ptr error;
+  };
+  std::deque<Ready> ready;
+  std::size_t next = std::size_t(rk.rank);
+  bool failed = false;
+  while (true) {
+    const bool more = next < c.plan.blocks() && !failed;
+    if (ready.empty() && !more) return true;
+    if (!ready.empty() && (!more || ready.size() >= kBlocksAhead || request_waiting())) {
+      if (!wait_for_request()) return false;
+      send_block(ready.front().bytes);
+      if (ready.front().error) std::rethrow_exception(ready.front().error);
+      ready.pop_front();
+      continue;
     }
-    if (!wait_for_request()) return false;
-    send_block(bytes);
-    if (err) std::rethrow_exception(err);
+    Ready r;
+    try {
+      r.bytes = encode_results(run_block(c, next, {}));
+    } catch (...) {
+      r.error = std::current_exception();
+      r.bytes = encode_error(status_of(r.error), message_of(r.error));
+      failed = true;
+    }
+    ready.push_back(std::move(r));
+    next += std::size_t(rk.size);
   }
-  return true;
 }
 
 // Rank 0: if it leaves the block loop early (its own error or one reported by a worker), tells
@@ -438,6 +457,16 @@ class StopWorkersOnExit {
   StopWorkersOnExit(RankInfo rk, std::size_t blocks) : rk_(rk), blocks_(blocks) {}
   ~StopWorkersOnExit() {
     if (done_) return;
+    // A worker asked for a block sends it; take it off the wire (a large message would block
+    // the worker forever). If it is an error report, that worker has left already.
+    if (outstanding_ >= 0) {
+      try {
+        const std::vector<char> bytes = receive_block(outstanding_);
+        if (bytes.empty() || bytes[0] != char(BlockStatus::kOk)) failed_rank_ = outstanding_;
+      } catch (...) {
+        failed_rank_ = outstanding_;
+      }
+    }
     for (int w = 1; w < rk_.size; ++w) {
       if (w == failed_rank_) continue;
       // Lowest block of w not yet requested.
@@ -452,6 +481,8 @@ class StopWorkersOnExit {
     }
   }
   void next_unrequested(std::size_t b) { next_ = b; }
+  void requested(int rank) { outstanding_ = rank; }
+  void received() { outstanding_ = -1; }
   void failed_rank(int r) { failed_rank_ = r; }
   void done() { done_ = true; }
 
@@ -460,6 +491,7 @@ class StopWorkersOnExit {
   std::size_t blocks_;
   std::size_t next_ = 0;
   int failed_rank_ = -1;
+  int outstanding_ = -1;  // worker asked for a block that has not been received yet
   bool done_ = false;
 };
 
@@ -550,6 +582,14 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     if (trajectory) report(++done);
   };
 
+  // Rank 0's own blocks computed ahead while a worker's block is not there yet.
+  std::map<std::size_t, std::vector<ItemResult>> own_ahead;
+  std::size_t own_next = 0;  // next own block not computed yet
+  auto compute_own = [&]() {
+    own_ahead.emplace(own_next, run_block(ctx, own_next, on_item));
+    own_next += std::size_t(rk.size);
+  };
+
   std::vector<Pending> pending;
   std::vector<detectors::Photon> ready;
   records::TagBlock tags;
@@ -559,10 +599,15 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     stop_guard.next_unrequested(b + 1);
     std::vector<ItemResult> results;
     if (owner == 0) {
-      results = run_block(ctx, b, on_item);
+      if (own_next == b) compute_own();
+      results = std::move(own_ahead.at(b));
+      own_ahead.erase(b);
     } else {
       send_request(owner, true);
+      stop_guard.requested(owner);
+      while (own_ahead.size() < kBlocksAhead && own_next < plan.blocks() && !block_waiting(owner)) compute_own();
       const std::vector<char> bytes = receive_block(owner);
+      stop_guard.received();
       stop_guard.failed_rank(owner);  // if decoding throws, the owner has reported an error and left
       results = decode_results(bytes, owner);
       stop_guard.failed_rank(-1);
