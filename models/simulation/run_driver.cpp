@@ -14,6 +14,7 @@
 #include <chrono>
 #include <cmath>
 #include <cstring>
+#include <ctime>
 #include <deque>
 #include <exception>
 #include <limits>
@@ -53,6 +54,13 @@ constexpr std::size_t kMaxBlockItems = 1024;
 constexpr std::size_t kBlocksAhead = 4;
 
 std::int64_t to_ps(double t_us) { return std::llround(t_us * 1e6); }
+
+// CPU seconds used by this process so far (all threads).
+double process_cpu_s() {
+  timespec ts{};
+  clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+  return double(ts.tv_sec) + 1e-9 * double(ts.tv_nsec);
+}
 
 // One unit of work: a trajectory (a cluster, or one atom of a fallback cluster) or a piece of an
 // empty interval with a driven resonator.
@@ -128,9 +136,10 @@ class Decoder {
   std::size_t pos_ = 0;
 };
 
-std::vector<char> encode_results(const std::vector<ItemResult>& results) {
+std::vector<char> encode_results(const std::vector<ItemResult>& results, double cpu_s) {
   Encoder e;
   e.pod(BlockStatus::kOk);
+  e.pod(cpu_s);
   e.pod<std::uint64_t>(results.size());
   for (const auto& r : results) {
     e.pod(r.jumps);
@@ -157,7 +166,7 @@ std::vector<char> encode_error(BlockStatus status, const std::string& message) {
 }
 
 // Decodes a block; an error block is rethrown here as the exception type it was on its rank.
-std::vector<ItemResult> decode_results(const std::vector<char>& bytes, int rank) {
+std::vector<ItemResult> decode_results(const std::vector<char>& bytes, int rank, double& cpu_s) {
   Decoder d(bytes);
   const auto status = d.pod<BlockStatus>();
   if (status != BlockStatus::kOk) {
@@ -169,6 +178,7 @@ std::vector<ItemResult> decode_results(const std::vector<char>& bytes, int rank)
       default: throw std::runtime_error(msg + " (on MPI rank " + std::to_string(rank) + ")");
     }
   }
+  cpu_s = d.pod<double>();
   std::vector<ItemResult> out(d.pod<std::uint64_t>());
   for (auto& r : out) {
     r.jumps = d.pod<std::int64_t>();
@@ -439,7 +449,9 @@ bool worker_loop(const BlockContext& c, RankInfo rk) {
     }
     Ready r;
     try {
-      r.bytes = encode_results(run_block(c, next, {}));
+      const double cpu0 = process_cpu_s();
+      auto results = run_block(c, next, {});
+      r.bytes = encode_results(results, process_cpu_s() - cpu0);
     } catch (...) {
       r.error = std::current_exception();
       r.bytes = encode_error(status_of(r.error), message_of(r.error));
@@ -585,8 +597,11 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
   // Rank 0's own blocks computed ahead while a worker's block is not there yet.
   std::map<std::size_t, std::vector<ItemResult>> own_ahead;
   std::size_t own_next = 0;  // next own block not computed yet
+  sum.rank_compute_cpu_s.assign(std::size_t(rk.size), 0.0);
   auto compute_own = [&]() {
+    const double cpu0 = process_cpu_s();
     own_ahead.emplace(own_next, run_block(ctx, own_next, on_item));
+    sum.rank_compute_cpu_s[0] += process_cpu_s() - cpu0;
     own_next += std::size_t(rk.size);
   };
 
@@ -609,7 +624,9 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
       const std::vector<char> bytes = receive_block(owner);
       stop_guard.received();
       stop_guard.failed_rank(owner);  // if decoding throws, the owner has reported an error and left
-      results = decode_results(bytes, owner);
+      double cpu_s = 0.0;
+      results = decode_results(bytes, owner, cpu_s);
+      sum.rank_compute_cpu_s[std::size_t(owner)] += cpu_s;
       stop_guard.failed_rank(-1);
       std::size_t n = 0;
       for (std::size_t i = plan.block_begin[b]; i < plan.block_begin[b + 1]; ++i) n += !plan.items[i].empty_piece;
@@ -693,6 +710,17 @@ std::string Summary::full_report() const {
        << " tags recorded (" << double(c.recorded) / duration_s << " /s)\n";
   const double core_s = wall_time_s * threads * ranks;
   if (core_s > 0) os << "  lab seconds per core-second " << duration_s / core_s << "\n";
+  if (ranks > 1 && !rank_compute_cpu_s.empty()) {
+    os << "  CPU seconds in blocks per rank:";
+    double total = 0.0, most = 0.0;
+    for (double c : rank_compute_cpu_s) {
+      os << " " << c;
+      total += c;
+      most = std::max(most, c);
+    }
+    if (most > 0) os << " (balance " << total / (double(ranks) * most) << ")";
+    os << "\n";
+  }
   for (const auto& w : warnings) os << "  warning: " << w << "\n";
   return os.str();
 }
@@ -717,6 +745,7 @@ std::string Summary::to_json() const {
   j["threads_count"] = threads;
   j["ranks_count"] = ranks;
   j["blocks_count"] = blocks;
+  j["rank_compute_cpu_s"] = rank_compute_cpu_s;
   j["warnings"] = warnings;
   auto& ch = j["channels"] = nlohmann::json::array();
   for (const auto& c : channels)

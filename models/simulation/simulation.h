@@ -66,6 +66,9 @@ struct Summary {
   int threads = 1;                  // OpenMP threads per rank
   int ranks = 1;                    // MPI ranks (1 without MPI)
   std::size_t blocks = 0;           // time blocks the run was cut into
+  // CPU seconds (all threads) each rank spent computing its blocks (rank 0's summary only):
+  // Σ / (ranks · max) is the load balance, independent of other load on the machine.
+  std::vector<double> rank_compute_cpu_s;
 
   std::string brief_report() const;
   std::string full_report() const;
