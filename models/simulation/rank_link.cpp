@@ -90,12 +90,6 @@ void send_request(int, bool) { throw InternalError("send_request without MPI"); 
 bool block_waiting(int) { throw InternalError("block_waiting without MPI"); }
 std::vector<char> receive_block(int) { throw InternalError("receive_block without MPI"); }
 bool request_waiting() { throw InternalError("request_waiting without MPI"); }
-bool request_waiting() {
-  int flag = 0;
-  check(MPI_Iprobe(0, kRequestTag, MPI_COMM_WORLD, &flag, MPI_STATUS_IGNORE), "request_waiting");
-  return flag != 0;
-}
-
 bool wait_for_request() { throw InternalError("wait_for_request without MPI"); }
 void send_block(const std::vector<char>&) { throw InternalError("send_block without MPI"); }
 
