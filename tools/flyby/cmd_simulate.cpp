@@ -42,9 +42,11 @@ void run_simulate(const SimulateArgs& a) {
     // On a terminal one line updated in place 4 times a second; otherwise (a log, mpirun's
     // forwarding) a new line every 5 s.
     const auto every = terminal ? std::chrono::milliseconds(250) : std::chrono::milliseconds(5000);
-    o.progress = [t0, last, every, terminal](std::size_t done, std::size_t total) mutable {
+    bool finished = false;
+    o.progress = [t0, last, every, terminal, finished](std::size_t done, std::size_t total) mutable {
       const auto now = std::chrono::steady_clock::now();
-      if (done < total && now - last < every) return;
+      if (finished || (done < total && now - last < every)) return;
+      finished = done >= total;
       last = now;
       const double el = std::chrono::duration<double>(now - t0).count();
       const double eta = done > 0 ? el * double(total - done) / double(done) : 0.0;
