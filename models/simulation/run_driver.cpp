@@ -47,11 +47,11 @@ constexpr double kGapPieceUs = 1e4;
 constexpr int kGapPieceShift = 40;
 // Automatic blocks under MPI: about this many blocks per rank of about equal estimated cost
 // (load balance over ranks) ...
-constexpr std::size_t kBlocksPerRank = 8;
+constexpr std::size_t kBlocksPerRank = 32;
 // ... with at most this many items per block (bounds the photons held in memory).
 constexpr std::size_t kMaxBlockItems = 1024;
 // Finished blocks a rank may hold ahead of rank 0's requests (evens out unequal blocks).
-constexpr std::size_t kBlocksAhead = 4;
+constexpr std::size_t kBlocksAhead = 8;
 
 std::int64_t to_ps(double t_us) { return std::llround(t_us * 1e6); }
 
