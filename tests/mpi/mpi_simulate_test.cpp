@@ -1,10 +1,7 @@
 // `mpirun -np K flyby simulate` (K = 1, 2, 3) writes the record a one-process run writes, bit
 // for bit, and an error on an MPI run is one line with no output left behind. Built only when
 // CMake found MPI (tests/CMakeLists.txt); FLYBY_MPIEXEC is the launcher it found.
-//
-// Under the ASan+UBSan build the OpenMPI libraries report leaks of their own at exit (not ours);
-// the runs here then use the LeakSanitizer suppression file tests/mpi/openmpi.lsan.supp, which
-// names only OpenMPI's and its helpers' libraries.
+// Not built under the sanitizers (see tests/CMakeLists.txt for why).
 #include <catch2/catch.hpp>
 
 #include <filesystem>
@@ -88,10 +85,7 @@ seed_id = )" + std::to_string(seed) + "\n";
 
 // Runs `mpirun ... -np K <flyby> ARGS` in `cwd` (OpenMP: one thread per rank unless ARGS say).
 CliResult run_mpi(int ranks, const std::string& args, const std::string& cwd) {
-  std::string env;
-#ifdef FLYBY_LSAN_SUPPRESSIONS
-  env = "LSAN_OPTIONS=suppressions=" FLYBY_LSAN_SUPPRESSIONS ":print_suppressions=0 ";
-#endif
+  const std::string env;
   // run_flyby prefixes the flyby path; put the launcher in front of it through the shell.
   const std::string out = cwd + "/.mpi_stdout", err = cwd + "/.mpi_stderr";
   const std::string cmd = "cd '" + cwd + "' && " + env + "OMP_NUM_THREADS=1 '" FLYBY_MPIEXEC
