@@ -1,14 +1,11 @@
-// Scenario assembly and the simulate driver (see simulation.h and docs/simulate.md).
+// Scenario assembly: one engine model per interaction cluster (see simulation.h and
+// docs/simulate.md); the run driver is in run_driver.cpp.
 #include "models/simulation/simulation.h"
 
 #include <algorithm>
-#include <atomic>
-#include <chrono>
 #include <cmath>
 #include <map>
-#include <mutex>
-#include <nlohmann/json.hpp>
-#include <set>
+#include <memory>
 #include <sstream>
 
 #include "engine/common/errors.h"
@@ -35,13 +32,6 @@ constexpr double kTwoPi = 6.283185307179586;
 // zero hyperfine energy in the frame, so the integrator's step is not set by a GHz phase). Light
 // shifts neglected by this are ≤ Ω²/(4Δ): 25 kHz for Ω/2π = 10 MHz at Δ/2π = 1 GHz.
 constexpr double kFarDetuningMHz = 1000.0;
-
-// Leaked norm of the excitation truncation above which the summary warns (same level as the Fock
-// monitor's warning, trajectory::Options::fock_warning_population).
-constexpr double kLeakWarningFraction = 1e-3;
-
-std::uint64_t kFallbackBit = std::uint64_t(1) << 63;
-std::uint64_t kEmptyBit = std::uint64_t(1) << 62;
 
 // Per-atom matrices shared by every atom of a scenario.
 struct AtomMatrices {
@@ -267,6 +257,16 @@ trajectory::Model build_cluster_model(const config::CheckedScenario& s, const st
   return build_model(s, atom_matrices(s), atoms, start_us, end_us, channel_of, basis);
 }
 
+ClusterModelBuilder cluster_model_builder(const config::CheckedScenario& s) {
+  auto A = std::make_shared<const AtomMatrices>(atom_matrices(s));
+  ClusterModelBuilder b;
+  b.atom_dimension = A->dim;
+  b.build = [&s, A](const std::vector<ClusterAtom>& atoms, double start_us, double end_us, std::vector<int>& channel_of,
+                    const ClusterBasis& basis) { return build_model(s, *A, atoms, start_us, end_us, channel_of, basis); };
+  b.plan = [&s, A](int atoms_together) { return plan(s, *A, atoms_together); };
+  return b;
+}
+
 namespace {
 trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
                               const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
@@ -466,313 +466,5 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
   return m;
 }
 }  // namespace
-
-// ---------------------------------------------------------------------------------------------
-
-namespace {
-
-struct Task {
-  std::vector<ClusterAtom> atoms;
-  double start_us = 0, end_us = 0;
-  std::uint64_t stream = 0;
-  ClusterBasis basis;
-};
-
-struct TaskResult {
-  std::vector<detectors::Photon> photons;
-  long jumps = 0, steps = 0;
-  double top_fock = 0.0;
-  bool ok = true;
-  std::string message;
-  std::vector<std::string> warnings;
-  double leak = 0.0, dropped = 0.0;
-  long pruned = 0;
-};
-
-std::int64_t to_ps(double t_us) { return std::llround(t_us * 1e6); }
-
-}  // namespace
-
-Summary simulate(const config::CheckedScenario& s, const Options& o) {
-  const auto wall0 = std::chrono::steady_clock::now();
-  Summary sum;
-  sum.seed = o.seed.value_or(s.config.run.seed);
-  sum.duration_s = o.duration_s.value_or(s.config.run.duration_s);
-  if (!(sum.duration_s > 0.0) || !std::isfinite(sum.duration_s))
-    throw InputError("--duration-s must be a positive number of seconds");
-  if (sum.duration_s > 1e5) throw InputError("--duration-s is larger than 1e5 s");
-  sum.threads = o.threads > 0 ? o.threads : ensemble::omp_default_threads();
-  const double D = sum.duration_s * 1e6;  // µs
-  const double frame = frame_detuning_rad_per_us(s);
-  {
-    std::ostringstream f;
-    f << "fields rotate at the reference transition + " << frame / kTwoPi << " MHz ("
-      << (!s.config.resonator_drives.empty() ? "first resonator drive"
-          : !s.config.side_drives.empty()    ? "first side drive"
-                                             : "reference transition")
-      << ")";
-    sum.frame_description = f.str();
-  }
-
-  // Atoms of the run and their clusters.
-  std::vector<source::Arrival> arrivals;
-  if (s.config.source.kind == config::SourceKind::kBeam) {
-    source::BeamArrivals beam(s.config.source.beam, *s.arrival_rate_per_us, s.interaction_elements,
-                              s.ground_populations, sum.seed,
-                              {s.config.run.arrival_block_us, s.config.run.interaction_cutoff});
-    arrivals = beam.window(0.0, D);
-  } else {
-    arrivals = source::stationary_arrivals(s.config.source.positions_um, s.ground_populations, sum.seed, D);
-  }
-  std::vector<std::optional<source::Interval>> intervals;
-  for (auto& a : arrivals) {
-    if (a.interval) {
-      if (!std::isfinite(a.interval->begin_us)) a.interval->begin_us = 0.0;
-      if (!std::isfinite(a.interval->end_us)) a.interval->end_us = D;
-      if (a.interval->begin_us >= D || a.interval->end_us <= 0.0) a.interval.reset();
-    }
-    intervals.push_back(a.interval);
-    if (a.interval) ++sum.atoms;
-  }
-  const auto clusters = source::make_clusters(intervals);
-  sum.clusters = clusters.size();
-
-  const AtomMatrices AM = atom_matrices(s);
-  std::vector<Task> tasks;
-  for (const auto& c : clusters) {
-    const int k = source::max_simultaneous(c);
-    sum.max_simultaneous_atoms = std::max(sum.max_simultaneous_atoms, k);
-    const double t0 = c.span.begin_us, t1 = std::min(c.span.end_us, D);
-    const ClusterPlan p = plan(s, AM, k);
-    if (p.basis.max_excitation) sum.max_excitation = p.basis.max_excitation;
-    const bool joint = p.method == ClusterMethod::kExact || p.method == ClusterMethod::kTruncated;
-    if (joint) {
-      ++(p.method == ClusterMethod::kExact ? sum.exact_clusters : sum.truncated_clusters);
-      Task t;
-      t.start_us = t0;
-      t.end_us = t1;
-      t.basis = p.basis;
-      for (const auto& mbr : c.members) t.atoms.push_back({arrivals[mbr.atom], mbr.interval});
-      t.stream = arrivals[c.members.front().atom].id;
-      tasks.push_back(std::move(t));
-    } else {
-      // Every atom alone (with its own copy of the resonator modes, if any) over its own interval.
-      ++(p.method == ClusterMethod::kUncoupled ? sum.uncoupled_clusters : sum.fallback_clusters);
-      for (const auto& mbr : c.members) {
-        Task t;
-        t.start_us = mbr.interval.begin_us;
-        t.end_us = std::min(mbr.interval.end_us, D);
-        t.basis = p.basis;
-        t.atoms.push_back({arrivals[mbr.atom], mbr.interval});
-        t.stream = kFallbackBit | arrivals[mbr.atom].id;
-        tasks.push_back(std::move(t));
-      }
-    }
-  }
-  if (sum.fallback_clusters > 0)
-    sum.warnings.push_back(std::to_string(sum.fallback_clusters) +
-                           " cluster(s) above run.max_cluster_dimension_count even with the excitation truncation were "
-                           "simulated as independent single-atom sub-clusters (no collective effects between their atoms)");
-  sum.trajectories = tasks.size();
-
-  trajectory::Options topt;
-  topt.rtol = s.config.run.relative_tolerance;
-  topt.atol = std::min(1e-8, topt.rtol * 1e-2);
-  topt.fock_cutoff_setting = "resonator.fock_cutoff_count";
-
-  std::mutex progress_mutex;
-  std::atomic<std::size_t> done{0};
-  const std::size_t total = tasks.size();
-  auto results = ensemble::map_ordered<TaskResult>(total, o.threads, [&](std::size_t i, trajectory::Workspace& ws) {
-    const Task& t = tasks[i];
-    TaskResult r;
-    if (t.end_us > t.start_us) {
-      std::vector<int> channel_of;
-      trajectory::Model model = build_model(s, AM, t.atoms, t.start_us, t.end_us, channel_of, t.basis);
-      for (const auto& sub : model.subsystems)
-        for (bool a : sub.allowed) r.pruned += !a;
-      trajectory::Integrator integ(model, topt);
-      Rng rng = make_stream(sum.seed, StreamPurpose::kTrajectory, t.stream);
-      const auto tr = integ.run(rng, ws);
-      r.jumps = tr.summary.jumps;
-      r.steps = tr.summary.steps();
-      r.top_fock = tr.summary.top_fock_population_max;
-      r.ok = tr.summary.ok();
-      r.message = tr.summary.message;
-      r.warnings = tr.summary.warnings;
-      r.leak = tr.summary.excitation_leak_max;
-      r.dropped = tr.summary.attach_dropped_max;
-      for (const auto& j : tr.jumps) {
-        const int det = channel_of[std::size_t(j.channel)];
-        if (det < 0 || j.time_us < 0.0 || j.time_us >= D) continue;
-        r.photons.push_back({to_ps(j.time_us), std::uint32_t(det)});
-      }
-    }
-    const std::size_t n = ++done;
-    if (o.progress) {
-      std::lock_guard<std::mutex> lock(progress_mutex);
-      o.progress(n, total);
-    }
-    return r;
-  });
-
-  // Merge in time order (ties by task index, then emission order: deterministic).
-  std::vector<detectors::Photon> photons;
-  for (auto& r : results) {
-    sum.jumps += r.jumps;
-    sum.steps += r.steps;
-    sum.top_fock_population_max = std::max(sum.top_fock_population_max, r.top_fock);
-    sum.excitation_leak_max = std::max(sum.excitation_leak_max, r.leak);
-    sum.attach_dropped_max = std::max(sum.attach_dropped_max, r.dropped);
-    sum.pruned_levels += r.pruned;
-    if (!r.ok && sum.ok) {
-      sum.ok = false;
-      sum.message = r.message;
-    }
-    for (auto& w : r.warnings)
-      if (std::find(sum.warnings.begin(), sum.warnings.end(), w) == sum.warnings.end()) sum.warnings.push_back(w);
-    photons.insert(photons.end(), r.photons.begin(), r.photons.end());
-  }
-
-  if (sum.max_excitation && std::max(sum.excitation_leak_max, sum.attach_dropped_max) > kLeakWarningFraction)
-    sum.warnings.push_back("excitation truncation: estimated leaked norm " +
-                           std::to_string(std::max(sum.excitation_leak_max, sum.attach_dropped_max)) + " (warning level " +
-                           std::to_string(kLeakWarningFraction) + "); raise run.max_excitation_count");
-
-  // Empty intervals with a driven resonator: a coherent state stays coherent under the
-  // no-jump evolution and under a jump of a (it is an eigenstate of a), so each output channel
-  // clicks as an independent Poisson process of rate |c·α|² — generated directly, once.
-  const auto rates = empty_resonator_rates_per_us(s);
-  double rate_total = 0.0;
-  for (double r : rates) rate_total += r;
-  if (rate_total > 0.0) {
-    std::vector<std::pair<double, double>> gaps;
-    double t = 0.0;
-    for (const auto& c : clusters) {
-      if (c.span.begin_us > t) gaps.push_back({t, std::min(c.span.begin_us, D)});
-      t = std::max(t, c.span.end_us);
-      if (t >= D) break;
-    }
-    if (t < D) gaps.push_back({t, D});
-    for (std::size_t g = 0; g < gaps.size(); ++g) {
-      Rng rng = make_stream(sum.seed, StreamPurpose::kTrajectory, kEmptyBit | g);
-      double x = gaps[g].first;
-      while (true) {
-        x += -std::log(uniform_open0(rng)) / rate_total;
-        if (x >= gaps[g].second) break;
-        double u = uniform_open0(rng) * rate_total;
-        std::size_t c = 0;
-        while (c + 1 < rates.size() && (u > rates[c] || rates[c] == 0.0)) u -= rates[c++];
-        photons.push_back({to_ps(x), std::uint32_t(c)});
-        ++sum.empty_interval_photons;
-      }
-    }
-  }
-  std::stable_sort(photons.begin(), photons.end(),
-                   [](const detectors::Photon& p, const detectors::Photon& q) { return p.time_ps < q.time_ps; });
-
-  // Detector chain and record.
-  // One detector channel per [[channel]] in file order (models/detectors/detector_config.h);
-  // channels that trigger a feedback rule are heralds.
-  detectors::DetectorChainOptions dopt = detectors::detector_chain_options(s.config);
-  std::set<std::string> heralds;
-  for (const auto& r : s.config.feedback) heralds.insert(r.trigger_channel);
-  for (auto& d : dopt.channels)
-    if (heralds.count(d.channel.name)) d.channel.role = records::ChannelRole::kHerald;
-  const std::int64_t end_ps = to_ps(D);
-  detectors::DetectorChain chain(dopt, sum.seed, 0, end_ps);
-  records::RecordHeader header;
-  header.channels = chain.record_channels();
-  header.resolution_ps = s.config.run.tagger_resolution_ps;
-  header.start_ps = 0;
-  header.duration_ps = end_ps;
-  header.provenance = records::current_record_provenance("simulation", s.config.text, sum.seed);
-  records::RecordWriter writer(o.output_path, header);
-  records::TagBlock block;
-  constexpr std::size_t kChunk = 1 << 16;
-  for (std::size_t i = 0; i < photons.size(); i += kChunk) {
-    const std::size_t n = std::min(kChunk, photons.size() - i);
-    chain.push(std::span<const detectors::Photon>(photons.data() + i, n), block);
-    writer.append(block);
-    block.clear();
-  }
-  chain.finish(block);
-  writer.append(block);
-  writer.commit();
-
-  const auto& cs = chain.summary();
-  for (std::size_t c = 0; c < s.config.detectors.size(); ++c)
-    sum.channels.push_back({s.config.detectors[c].channel, cs.channels[c].photons, cs.channels[c].recorded});
-  sum.wall_time_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - wall0).count();
-  return sum;
-}
-
-std::string Summary::brief_report() const {
-  std::ostringstream os;
-  os << (ok ? "simulated " : "simulation stopped early: ") << duration_s << " s lab time in " << wall_time_s
-     << " s wall (" << threads << " thread(s)): " << atoms << " atoms, " << clusters << " clusters ("
-     << fallback_clusters << " fallback), " << jumps << " jumps";
-  for (const auto& c : channels) os << ", " << c.name << " " << c.recorded;
-  os << " tags";
-  return os.str();
-}
-
-std::string Summary::full_report() const {
-  std::ostringstream os;
-  os << brief_report() << "\n";
-  if (!ok) os << "  error: " << message << "\n";
-  os << "  seed " << seed << "; " << frame_description << "\n";
-  os << "  trajectories " << trajectories << ", most atoms together " << max_simultaneous_atoms << ", steps "
-     << steps << ", empty-resonator photons " << empty_interval_photons << "\n";
-  os << "  top-Fock population (max) " << top_fock_population_max << "\n";
-  os << "  cluster methods: " << exact_clusters << " exact, " << truncated_clusters << " truncated";
-  if (max_excitation) os << " (<= " << *max_excitation << " excitations)";
-  os << ", " << fallback_clusters << " independent atoms (approximation), " << uncoupled_clusters
-     << " uncoupled (exact); " << pruned_levels << " unreachable sublevels pruned\n";
-  if (max_excitation)
-    os << "  excitation truncation: leaked norm (max estimate) " << excitation_leak_max << ", dropped at attach (max) "
-       << attach_dropped_max << "\n";
-  for (const auto& c : channels)
-    os << "  channel " << c.name << ": " << c.photons << " photons at the detector, " << c.recorded
-       << " tags recorded (" << double(c.recorded) / duration_s << " /s)\n";
-  const double core_s = wall_time_s * threads;
-  if (core_s > 0) os << "  lab seconds per core-second " << duration_s / core_s << "\n";
-  for (const auto& w : warnings) os << "  warning: " << w << "\n";
-  return os.str();
-}
-
-std::string Summary::to_json() const {
-  nlohmann::json j;
-  j["ok"] = ok;
-  j["message"] = message;
-  j["seed"] = seed;
-  j["duration_s"] = duration_s;
-  j["atoms_count"] = atoms;
-  j["clusters_count"] = clusters;
-  j["fallback_clusters_count"] = fallback_clusters;
-  j["exact_clusters_count"] = exact_clusters;
-  j["truncated_clusters_count"] = truncated_clusters;
-  j["independent_clusters_count"] = fallback_clusters;
-  j["uncoupled_clusters_count"] = uncoupled_clusters;
-  if (max_excitation) j["max_excitation_count"] = *max_excitation; else j["max_excitation_count"] = nullptr;
-  j["excitation_leak_fraction"] = excitation_leak_max;
-  j["attach_dropped_fraction"] = attach_dropped_max;
-  j["pruned_levels_count"] = pruned_levels;
-  j["trajectories_count"] = trajectories;
-  j["max_simultaneous_atoms_count"] = max_simultaneous_atoms;
-  j["jumps_count"] = jumps;
-  j["steps_count"] = steps;
-  j["empty_interval_photons_count"] = empty_interval_photons;
-  j["top_fock_population_fraction"] = top_fock_population_max;
-  j["frame"] = frame_description;
-  j["wall_time_s"] = wall_time_s;
-  j["threads_count"] = threads;
-  j["warnings"] = warnings;
-  auto& ch = j["channels"] = nlohmann::json::array();
-  for (const auto& c : channels)
-    ch.push_back({{"name", c.name}, {"photons_count", c.photons}, {"recorded_count", c.recorded},
-                  {"rate_per_s", double(c.recorded) / duration_s}});
-  return j.dump(2, ' ', false, nlohmann::json::error_handler_t::replace);
-}
 
 }  // namespace flyby::simulation

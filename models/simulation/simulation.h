@@ -30,8 +30,13 @@ struct Options {
   std::optional<std::uint64_t> seed;
   // OpenMP threads for the cluster trajectories; 0 = OpenMP default. Never changes the result.
   int threads = 0;
-  // Called now and then with (clusters done, clusters total); from any thread, serialized.
+  // Called now and then with (trajectories done, trajectories total); on MPI rank 0 only, from
+  // any thread, serialized.
   std::function<void(std::size_t, std::size_t)> progress;
+  // Work items (trajectories and empty-resonator pieces) per time block — the unit handed to an
+  // MPI rank, and what bounds the photons held in memory; 0 = automatic (docs/simulate.md).
+  // Never changes the result.
+  std::size_t block_items = 0;
 };
 
 struct ChannelSummary {
@@ -67,15 +72,30 @@ struct Summary {
   std::vector<ChannelSummary> channels;
   std::string frame_description;    // the rotating frame chosen (see docs/simulate.md)
   double wall_time_s = 0.0;
-  int threads = 1;
+  int threads = 1;                  // OpenMP threads per rank
+  int ranks = 1;                    // MPI ranks (1 without MPI)
+  std::size_t blocks = 0;           // time blocks the run was cut into
+  // CPU seconds (all threads) each rank spent computing its blocks (rank 0's summary only):
+  // Σ / (ranks · max) is the load balance, independent of other load on the machine.
+  std::vector<double> rank_compute_cpu_s;
 
   std::string brief_report() const;
   std::string full_report() const;
   std::string to_json() const;      // machine-readable (units in the field names)
 };
 
-// Runs the whole simulation and writes the record. Throws flyby::InputError on bad input
-// (nothing is left under the output name).
+// Runs the whole simulation and writes the record (models/simulation/run_driver.cpp). Throws
+// flyby::InputError on bad input (nothing is left under the output name).
+//
+// Time blocks and MPI: the trajectories (in order of their start time) and the empty-resonator
+// pieces are cut into consecutive blocks. When MPI is initialized with more than one rank, block
+// b is computed by rank b mod K; rank 0 receives the blocks in order and streams the photons,
+// merged in time order, through the detector chain into the record writer, so only a few blocks
+// of photons are in memory (also for one process). Every rank must call simulate() with the
+// same scenario and options; the record (written by rank 0 only) is bit-identical for any rank
+// and thread count. On ranks other than 0 the returned summary holds the plan only. An error on
+// any rank reaches rank 0, which removes its temporary output and rethrows it; the other ranks
+// stop after their current block.
 Summary simulate(const config::CheckedScenario& scenario, const Options& options);
 
 // --- pieces exposed for tests -------------------------------------------------------------
@@ -132,6 +152,17 @@ struct ClusterPlan {
 // basis is too large; independent atoms when even that exceeds the cap.
 ClusterPlan plan_cluster(const config::CheckedScenario& scenario, int atoms_together);
 
+// build_cluster_model with the per-scenario atom matrices computed once (for the run driver).
+struct ClusterModelBuilder {
+  int atom_dimension = 0;  // sublevels per atom (+1 'lost' state when there is loss)
+  // Same arguments and result as build_cluster_model; keeps a reference to the scenario.
+  std::function<trajectory::Model(const std::vector<ClusterAtom>&, double, double, std::vector<int>&,
+                                  const ClusterBasis&)>
+      build;
+  // Same as plan_cluster(scenario, atoms_together), without recomputing the atom matrices.
+  std::function<ClusterPlan(int)> plan;
+};
+
 // The engine model of one cluster over [start_us, end_us): modes (if any), atoms attached at
 // entry and detached at exit, Hamiltonian, channels, feedback hook. `channel_of[k]` gets, for
 // engine channel k, the detector channel index or −1 when undetected. Atoms' excited sublevels
@@ -141,5 +172,6 @@ trajectory::Model build_cluster_model(const config::CheckedScenario& scenario, c
 trajectory::Model build_cluster_model(const config::CheckedScenario& scenario, const std::vector<ClusterAtom>& atoms,
                                       double start_us, double end_us, std::vector<int>& channel_of,
                                       const ClusterBasis& basis);
+ClusterModelBuilder cluster_model_builder(const config::CheckedScenario& scenario);
 
 }  // namespace flyby::simulation
