@@ -106,6 +106,12 @@ std::vector<KeySpec> build_keys() {
                   false, 1.0));
   k.push_back(num("resonator.fock_cutoff_count", "photons", "2", O, "Highest photon number kept per mode.", 1.0, false,
                   50.0, T::kInteger));
+  k.push_back(str("resonator.field_frame", "displaced", O,
+                  "displaced: each mode is written as a → α + a around the coherent amplitude α of the empty driven "
+                  "resonator at the cluster start (an exact change of frame; the Fock cutoff then only holds the "
+                  "atoms' field, so a strong resonator drive needs no large cutoff); plain: the photon-number basis "
+                  "of the whole field. Identical without a resonator drive.",
+                  {"displaced", "plain"}));
   k.push_back(str("resonator.mode_shape", "standing", O,
                   "standing: g ∝ exp(−ρ²/w0²) cos(kz); running: exp(−ρ²/w0²) e^{ikz} (V = π w0² L/2).",
                   {"standing", "running"}));

@@ -349,6 +349,7 @@ void read_resonator(const Reader& r, const toml::table& t, ScenarioConfig& sc) {
   s.output_mirror_fraction = Reader::num(t, "output_mirror_fraction").value_or(1.0);
   s.fock_cutoff = static_cast<int>(Reader::integer(t, "fock_cutoff_count").value_or(2));
   s.standing_wave = Reader::str(t, "mode_shape").value_or("standing") == "standing";
+  s.displaced_frame = Reader::str(t, "field_frame").value_or("displaced") == "displaced";
   sc.resonator = s;
 }
 

@@ -74,6 +74,7 @@ ResonatorModel build_resonator(const ResonatorSpec& s, double wavelength_nm, dou
   m.length_um = s.length_mm * 1e3;
   m.waist_um = s.waist_um;
   m.standing_wave = s.standing_wave;
+  m.displaced_frame = s.displaced_frame;
   m.fock_cutoff = s.fock_cutoff;
   m.k_rad_per_um = 2.0 * std::numbers::pi / (wavelength_nm * 1e-3);
   if (s.kappa_MHz) {

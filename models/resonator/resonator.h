@@ -57,6 +57,7 @@ struct ResonatorSpec {
   double output_mirror_fraction = 1.0;    // fraction of 2κ leaving through the output mirror, [0, 1]
   int fock_cutoff = 2;                    // highest photon number kept per mode, ≥ 1
   bool standing_wave = true;              // false: running wave (ring resonator)
+  bool displaced_frame = true;            // modes as a → α + a around the empty driven amplitude α
   std::vector<OutputPort> outputs;        // detected output channels
 };
 
@@ -68,6 +69,7 @@ struct ResonatorModel {
   double length_um = 0.0;
   double mode_volume_um3 = 0.0;           // V used for g0 (also when g0 was given)
   bool standing_wave = true;
+  bool displaced_frame = true;            // see ResonatorSpec::displaced_frame
   int fock_cutoff = 2;
   std::array<Vec3, 2> polarization_lab;   // p₁, p₂ (real, lab frame)
   std::array<double, 2> detuning_rad_per_us{0.0, 0.0};  // ω_i − ω_ref

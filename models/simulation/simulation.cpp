@@ -304,8 +304,18 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
     const auto alpha = empty_resonator_amplitudes(s, start_us);
     for (int i = 0; i < 2; ++i) {
       m.subsystems.push_back(space::Subsystem::mode(i == 0 ? "mode 1" : "mode 2", cut));
-      m.initial.push_back({space::SubsystemId(i), coherent_state(alpha[i], cut)});
-      a[i] = annihilation(cut);
+      if (R.displaced_frame) {
+        // Displaced frame: the field is α + a with the constant α of the empty driven resonator at
+        // the cluster start, so the mode starts in the vacuum of the displaced operator and the Fock
+        // basis only holds the field the atoms add. A constant displacement is a unitary change of
+        // frame, so every operator built from a[i] below (detuning, drive, coupling, channels and
+        // the physical decay they must add up to) stays exact; only the truncation differs.
+        m.initial.push_back({space::SubsystemId(i), coherent_state(Complex(0.0), cut)});
+        a[i] = annihilation(cut) + alpha[i] * LocalMatrix::Identity(cut + 1, cut + 1);
+      } else {
+        m.initial.push_back({space::SubsystemId(i), coherent_state(alpha[i], cut)});
+        a[i] = annihilation(cut);
+      }
       const double w = R.detuning_rad_per_us[i] - frame;
       if (w != 0.0) m.hamiltonian.add(Operator::local(i, a[i].adjoint() * a[i], w));
       m.physical_decay += Operator::local(i, a[i].adjoint() * a[i], 2.0 * R.kappa_rad_per_us);
