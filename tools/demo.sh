@@ -26,4 +26,3 @@ rm -rf out/heralded_report
   # 4 = report written, figures missing (no matplotlib): the demo still counts as run.
   [ "$rc" -eq 4 ] || exit "$rc"
 }
-echo "report: out/heralded_report/report.md"
