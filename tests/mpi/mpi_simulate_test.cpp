@@ -11,6 +11,7 @@
 
 #include "engine/records/record_reader.h"
 #include "tests/support/record_compare.h"
+#include "tests/support/block_driver_config.h"
 #include "tests/support/run_cli.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
@@ -19,69 +20,6 @@ namespace {
 
 using flyby::test::CliResult;
 using flyby::test::ScratchDir;
-
-// A short run of a dense beam through a driven resonator with a detector chain that couples
-// neighbouring photons (dead time, afterpulses, jitter, dark counts) and a dimension cap that
-// makes overlapping single-atom trajectories: what the time blocks must get right.
-std::string mpi_config(std::uint64_t seed) {
-  return R"(
-[atom]
-species = "Rb87"
-ground_F = 2
-excited_F = 3
-[field]
-B_G = [0, 0, 3.0]
-[resonator]
-length_mm = 0.25
-waist_um = 25.0
-kappa_MHz = 3.0
-output_mirror_fraction = 0.7
-fock_cutoff_count = 2
-[[drive]]
-name = "probe"
-kind = "resonator"
-mode_index = 1
-empty_mean_photons_count = 0.05
-[[channel]]
-name = "H"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 0
-efficiency_fraction = 0.6
-dead_time_ns = 40
-jitter_fwhm_ps = 400
-dark_rate_per_s = 2000
-afterpulse_fraction = 0.2
-afterpulse_delay_ns = 30
-afterpulse_time_constant_ns = 50
-[[channel]]
-name = "V"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 90
-efficiency_fraction = 0.6
-dead_time_ns = 40
-dark_rate_per_s = 2000
-[source]
-kind = "beam"
-speed_distribution = "gaussian"
-speed_m_per_s = 12.0
-speed_spread_m_per_s = 1.5
-transverse_profile = "gaussian"
-transverse_sigma_um = 40
-axial_extent_um = 100
-flux_per_s = 40000
-[[population]]
-ground_F = 2
-m_F = 2
-probability_fraction = 1.0
-[run]
-duration_s = 0.0008
-max_cluster_dimension_count = 100
-seed_id = )" + std::to_string(seed) + "\n";
-}
 
 // Runs `mpirun ... -np K <flyby> ARGS` in `cwd` (OpenMP: one thread per rank unless ARGS say).
 CliResult run_mpi(int ranks, const std::string& args, const std::string& cwd) {
@@ -116,7 +54,7 @@ void check_ranks(int ranks) {
   ScratchDir d("mpi-sim");
   std::filesystem::create_directories(d / "one");
   std::filesystem::create_directories(d / "mpi");
-  std::ofstream((d / "cfg.toml").string()) << mpi_config(seed);
+  std::ofstream((d / "cfg.toml").string()) << flyby::test::block_driver_config(seed);
   // The same arguments in both runs (the command line is part of the record's provenance);
   // two items per block, so every rank gets several blocks and photons are held across blocks.
   const std::string args = "simulate ../cfg.toml -o run.h5 --json --threads 1 --block-items 2";
@@ -158,8 +96,8 @@ TEST_CASE("mpirun -np 3 flyby simulate equals a one-process run bit for bit", "[
 TEST_CASE("mpirun flyby simulate errors: one line from rank 0, non-zero exit, no output", "[mpi]") {
   const auto seed = flyby::test::seed("mpi simulate errors");
   ScratchDir d("mpi-err");
-  std::ofstream((d / "cfg.toml").string()) << mpi_config(seed);
-  std::ofstream((d / "bad.toml").string()) << mpi_config(seed) << "unknown_key_s = 1\n";
+  std::ofstream((d / "cfg.toml").string()) << flyby::test::block_driver_config(seed);
+  std::ofstream((d / "bad.toml").string()) << flyby::test::block_driver_config(seed) << "unknown_key_s = 1\n";
 
   SECTION("bad config: every rank fails the same way, rank 0 alone reports it") {
     const CliResult r = run_mpi(3, "simulate bad.toml -o run.h5", d.path().string());

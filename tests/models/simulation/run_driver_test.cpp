@@ -9,6 +9,7 @@
 #include "engine/records/record_reader.h"
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
+#include "tests/support/block_driver_config.h"
 #include "tests/support/record_compare.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
@@ -16,78 +17,12 @@
 namespace {
 
 using flyby::test::ScratchDir;
-
-// A dense, slow beam through a weakly driven resonator: many two- and three-atom clusters, which
-// the low dimension cap turns into overlapping single-atom trajectories (so photons of one
-// trajectory come after the start of later ones and must be held across block boundaries),
-// driven empty intervals between clusters, and a detector chain with dead time, afterpulses,
-// jitter and dark counts that couples neighbouring photons.
-std::string driver_config(std::uint64_t seed) {
-  return R"(
-[atom]
-species = "Rb87"
-ground_F = 2
-excited_F = 3
-[field]
-B_G = [0, 0, 3.0]
-[resonator]
-length_mm = 0.25
-waist_um = 25.0
-kappa_MHz = 3.0
-output_mirror_fraction = 0.7
-fock_cutoff_count = 2
-[[drive]]
-name = "probe"
-kind = "resonator"
-mode_index = 1
-empty_mean_photons_count = 0.05
-[[channel]]
-name = "H"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 0
-efficiency_fraction = 0.6
-dead_time_ns = 40
-jitter_fwhm_ps = 400
-dark_rate_per_s = 2000
-afterpulse_fraction = 0.2
-afterpulse_delay_ns = 30
-afterpulse_time_constant_ns = 50
-[[channel]]
-name = "V"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 90
-efficiency_fraction = 0.6
-dead_time_ns = 40
-dark_rate_per_s = 2000
-[source]
-kind = "beam"
-speed_distribution = "gaussian"
-speed_m_per_s = 12.0
-speed_spread_m_per_s = 1.5
-transverse_profile = "gaussian"
-transverse_sigma_um = 40
-axial_extent_um = 100
-flux_per_s = 40000
-[[population]]
-ground_F = 2
-m_F = 2
-probability_fraction = 1.0
-[run]
-duration_s = 0.0008
-max_cluster_dimension_count = 100
-seed_id = )" + std::to_string(seed) + "\n";
-}
-
 }  // namespace
 
 TEST_CASE("simulate: time blocks of any size give the record of one block", "[simulate][blocks]") {
   const auto seed = flyby::test::seed("simulate time blocks");
   ScratchDir d("sim-blocks");
-  std::ofstream((d / "cfg.toml").string()) << driver_config(seed);
+  std::ofstream((d / "cfg.toml").string()) << flyby::test::block_driver_config(seed);
   const auto scenario = flyby::config::check_scenario(flyby::config::load_config_file((d / "cfg.toml").string()));
 
   auto run = [&](std::size_t block_items, const std::string& name) {
