@@ -44,6 +44,26 @@ struct Stretch {
   };
   std::vector<TimedGroup> timed;
   bool timed_any() const { return !timed.empty(); }
+  // The same right-hand side fused into one compressed-row matrix per *sector*: a connected
+  // component of the graph of R0 and every R_g (states i, j joined when some R has an (i, j)
+  // entry). −i H_eff(t) never moves amplitude between sectors, so a state that is exactly zero
+  // outside some sectors stays so, and the adaptive stretch integrates only the states of the
+  // sectors it occupies (e.g. the two parity classes (−1)^{m + n₁ + n₂} of an atom on a π drive
+  // with a resonator along B: half the states). Exact, not an approximation: the skipped
+  // amplitudes are zeros, and each kept row sums the same products as the full matrix.
+  struct FusedRhs {
+    std::vector<int> row_start;  // compact rows, CSR offsets into the entries
+    std::vector<int> col;        // compact column index
+    std::vector<int> slot;       // 0: R0, g + 1: R_g (multiplied by φ_g(t))
+    std::vector<double> val;     // re, im per entry
+  };
+  struct Sector {
+    std::vector<long> states;  // full indices (increasing) of the sector's states
+    FusedRhs rhs;
+  };
+  std::vector<int> sector_of;       // per state
+  std::vector<Sector> sectors;      // one per connected component
+  Sector all;                       // every state (used when ψ occupies several sectors)
   SparseMatrix decay;  // Σ C†C: −d‖ψ‖²/dt = ⟨ψ|Σ C†C|ψ⟩ (the exact path's Newton derivative)
   std::vector<int> channel_ids;
   std::vector<SparseMatrix> channel_ops;
@@ -157,6 +177,72 @@ struct Run {
   }
 };
 
+// Connected components of the right-hand side's graph and the fused matrix of each (see Stretch).
+void build_sectors(Stretch& s) {
+  const long n = s.rhs_const.rows();
+  std::vector<const SparseMatrix*> mats{&s.rhs_const};
+  for (const auto& g : s.timed) mats.push_back(&g.rhs);
+  std::vector<long> parent(static_cast<std::size_t>(n));
+  for (long i = 0; i < n; ++i) parent[std::size_t(i)] = i;
+  auto find = [&](long i) {
+    while (parent[std::size_t(i)] != i) i = parent[std::size_t(i)] = parent[std::size_t(parent[std::size_t(i)])];
+    return i;
+  };
+  for (const auto* m : mats)
+    for (long i = 0; i < n; ++i)
+      for (SparseMatrix::InnerIterator it(*m, i); it; ++it) {
+        const long a = find(i), b = find(it.col());
+        if (a != b) parent[std::size_t(std::max(a, b))] = std::min(a, b);
+      }
+  s.sector_of.assign(std::size_t(n), -1);
+  std::vector<int> root_sector(std::size_t(n), -1);
+  s.sectors.clear();
+  for (long i = 0; i < n; ++i) {
+    const long r = find(i);
+    if (root_sector[std::size_t(r)] < 0) {
+      root_sector[std::size_t(r)] = int(s.sectors.size());
+      s.sectors.emplace_back();
+    }
+    s.sector_of[std::size_t(i)] = root_sector[std::size_t(r)];
+    s.sectors[std::size_t(root_sector[std::size_t(r)])].states.push_back(i);
+  }
+  s.all.states.resize(std::size_t(n));
+  for (long i = 0; i < n; ++i) s.all.states[std::size_t(i)] = i;
+  // Entries of row i from every matrix, by column then slot, with compact column indices.
+  std::vector<long> compact(std::size_t(n), -1);
+  auto fuse = [&](Stretch::Sector& sec) {
+    for (std::size_t k = 0; k < sec.states.size(); ++k) compact[std::size_t(sec.states[k])] = long(k);
+    Stretch::FusedRhs& f = sec.rhs;
+    f.row_start.assign(1, 0);
+    struct E {
+      long col;
+      int slot;
+      Complex v;
+    };
+    std::vector<E> row;
+    for (long i : sec.states) {
+      row.clear();
+      for (std::size_t q = 0; q < mats.size(); ++q)
+        for (SparseMatrix::InnerIterator it(*mats[q], i); it; ++it)
+          if (it.value() != Complex(0.0)) row.push_back({compact[std::size_t(it.col())], int(q), it.value()});
+      std::sort(row.begin(), row.end(), [](const E& a, const E& b) { return a.col != b.col ? a.col < b.col : a.slot < b.slot; });
+      for (const auto& e : row) {
+        f.col.push_back(int(e.col));
+        f.slot.push_back(e.slot);
+        f.val.push_back(e.v.real());
+        f.val.push_back(e.v.imag());
+      }
+      f.row_start.push_back(int(f.col.size()));
+    }
+  };
+  for (auto& sec : s.sectors) fuse(sec);
+  if (s.sectors.size() == 1) {
+    s.all.rhs = s.sectors[0].rhs;
+  } else {
+    fuse(s.all);
+  }
+}
+
 std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const std::vector<SubsystemId>& present,
                                        const std::vector<Complex>& controls, double t_us, Summary& summary) {
   auto s = std::make_shared<Stretch>();
@@ -216,6 +302,7 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
   s->heff_const = h - Complex(0.0, 0.5) * decay;
   s->heff_const.prune(Complex(0.0));
   s->rhs_const = -kI * s->heff_const;
+  build_sectors(*s);
   s->decay = decay;
   s->decay.prune(Complex(0.0));
   for (auto id : present)
@@ -329,29 +416,30 @@ Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t
   return leg;
 }
 
-// out = M·in (accumulate = false) or out += φ·M·in, for a compressed row-major sparse matrix.
-// Written out with real arithmetic: std::complex products call the NaN-checking __muldc3, and
-// this loop is where moving atoms spend most of their time (docs/performance.md).
-void csr_apply(const SparseMatrix& m, const double* in, double* out, bool accumulate, Complex phi = 1.0) {
-  const auto* outer = m.outerIndexPtr();
-  const auto* inner = m.innerIndexPtr();
-  const double* val = reinterpret_cast<const double*>(m.valuePtr());
-  const double pr = phi.real(), pi = phi.imag();
-  for (long i = 0; i < m.rows(); ++i) {
-    double ar = 0, ai = 0;
-    for (auto k = outer[i]; k < outer[i + 1]; ++k) {
-      const double vr = val[2 * k], vi = val[2 * k + 1];
-      const double xr = in[2 * inner[k]], xi = in[2 * inner[k] + 1];
-      ar += vr * xr - vi * xi;
-      ai += vr * xi + vi * xr;
+// out = Σ_slot φ_slot · M_slot · in for a fused compressed-row matrix (Stretch::FusedRhs), in real
+// arithmetic: std::complex products call the NaN-checking __muldc3, and this loop is where moving
+// atoms spend most of their time (docs/performance.md). One pass over the rows for all slots,
+// with separate accumulators for the two products of each real and imaginary part so that
+// consecutive entries do not wait for each other's additions.
+void fused_apply(const Stretch::FusedRhs& f, const double* phi, const double* in, double* out) {
+  const int* rs = f.row_start.data();
+  const int* col = f.col.data();
+  const int* slot = f.slot.data();
+  const double* val = f.val.data();
+  const long rows = long(f.row_start.size()) - 1;
+  for (long i = 0; i < rows; ++i) {
+    double ar0 = 0, ar1 = 0, ai0 = 0, ai1 = 0;
+    for (int k = rs[i]; k < rs[i + 1]; ++k) {
+      const double pr = phi[2 * slot[k]], pi = phi[2 * slot[k] + 1];
+      const double vr = pr * val[2 * k] - pi * val[2 * k + 1], vi = pr * val[2 * k + 1] + pi * val[2 * k];
+      const double xr = in[2 * col[k]], xi = in[2 * col[k] + 1];
+      ar0 += vr * xr;
+      ar1 += vi * xi;
+      ai0 += vr * xi;
+      ai1 += vi * xr;
     }
-    if (accumulate) {
-      out[2 * i] += pr * ar - pi * ai;
-      out[2 * i + 1] += pr * ai + pi * ar;
-    } else {
-      out[2 * i] = ar;
-      out[2 * i + 1] = ai;
-    }
+    out[2 * i] = ar0 - ar1;
+    out[2 * i + 1] = ai0 + ai1;
   }
 }
 
@@ -363,18 +451,41 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
     return leg;
   }
   if (t1 <= t0) return leg;
-  const long n = psi.size();
-  std::vector<Complex> fv(s.fns.size());
-  auto system = [&](const StateVec& x, StateVec& dxdt, double t) {
-    csr_apply(s.rhs_const, x.data(), dxdt.data(), false);
-    for (std::size_t k = 0; k < fv.size(); ++k) fv[k] = (*s.fns[k])(t);
-    for (const auto& g : s.timed) {
-      const Complex phi = g.conjugate ? std::conj(fv[g.fn]) : fv[g.fn];
-      if (phi != Complex(0.0)) csr_apply(g.rhs, x.data(), dxdt.data(), true, phi);
+  // The sector ψ occupies (exact zeros elsewhere stay zero), or all states.
+  const Stretch::Sector* sec = &s.all;
+  {
+    int only = -1;
+    for (long i = 0; i < psi.size(); ++i) {
+      if (psi[i] == Complex(0.0)) continue;
+      const int c = s.sector_of[std::size_t(i)];
+      if (only < 0) {
+        only = c;
+      } else if (c != only) {
+        only = -2;
+        break;
+      }
     }
+    if (only >= 0) sec = &s.sectors[std::size_t(only)];
+  }
+  const bool whole = sec->states.size() == std::size_t(psi.size());
+  const long n = long(sec->states.size());
+  std::vector<Complex> fv(s.fns.size());
+  std::vector<Complex> phi(s.timed.size() + 1, Complex(1.0));
+  auto system = [&](const StateVec& x, StateVec& dxdt, double t) {
+    for (std::size_t k = 0; k < fv.size(); ++k) fv[k] = (*s.fns[k])(t);
+    for (std::size_t g = 0; g < s.timed.size(); ++g)
+      phi[g + 1] = s.timed[g].conjugate ? std::conj(fv[s.timed[g].fn]) : fv[s.timed[g].fn];
+    fused_apply(sec->rhs, reinterpret_cast<const double*>(phi.data()), x.data(), dxdt.data());
   };
   StateVec x(2 * n);
-  Eigen::Map<Vector>(reinterpret_cast<Complex*>(x.data()), n) = psi;
+  if (whole) {
+    Eigen::Map<Vector>(reinterpret_cast<Complex*>(x.data()), n) = psi;
+  } else {
+    for (long k = 0; k < n; ++k) {
+      x[std::size_t(2 * k)] = psi[sec->states[std::size_t(k)]].real();
+      x[std::size_t(2 * k + 1)] = psi[sec->states[std::size_t(k)]].imag();
+    }
+  }
   const Options& opt = *run.options;
   auto stepper = odeint::make_dense_output(opt.atol, opt.rtol, opt.max_step_us.value_or(0.0),
                                            odeint::runge_kutta_dopri5<StateVec>());
@@ -390,7 +501,13 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
   auto norm2 = [n](const StateVec& v) {
     return Eigen::Map<const Vector>(reinterpret_cast<const Complex*>(v.data()), n).squaredNorm();
   };
-  auto to_psi = [&](const StateVec& v) { psi = Eigen::Map<const Vector>(reinterpret_cast<const Complex*>(v.data()), n); };
+  auto to_psi = [&](const StateVec& v) {
+    if (whole) {
+      psi = Eigen::Map<const Vector>(reinterpret_cast<const Complex*>(v.data()), n);
+    } else {
+      for (long k = 0; k < n; ++k) psi[sec->states[std::size_t(k)]] = Complex(v[std::size_t(2 * k)], v[std::size_t(2 * k + 1)]);
+    }
+  };
   double ga = g0;
   Vector probe;
   while (true) {
