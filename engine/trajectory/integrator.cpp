@@ -8,6 +8,7 @@
 #include <boost/math/tools/toms748_solve.hpp>
 #include <boost/numeric/odeint.hpp>
 #include <cmath>
+#include <cstring>
 #include <limits>
 #include <sstream>
 
@@ -55,12 +56,22 @@ struct Stretch {
     std::vector<int> row_start;  // compact rows, CSR offsets into the entries
     std::vector<int> col;        // compact column index
     std::vector<int> slot;       // 0: R0, g + 1: R_g (multiplied by φ_g(t))
-    std::vector<double> val;     // re, im per entry
+    std::vector<double> val;     // re, re, im, im per entry (duplicated for two-lane products)
   };
   struct Sector {
     std::vector<long> states;  // full indices (increasing) of the sector's states
     FusedRhs rhs;
   };
+  // Everything the matrices above were built from (stretch_signature): a later trajectory of
+  // another Integrator whose stretch has the same signature reuses them, rebinding only the
+  // model-owned parts (time functions, layout, truncation estimate). `owner` is the Integrator
+  // the model-owned parts currently belong to.
+  std::vector<double> signature;
+  std::uint64_t owner = 0;
+  // Every time-dependent group has a partner with the same function, the opposite conjugation
+  // and the adjoint matrix, so H(t) is Hermitian for any function values (a reused stretch needs
+  // no new Hermiticity check).
+  bool hermitian_by_structure = false;
   std::vector<int> sector_of;       // per state
   std::vector<Sector> sectors;      // one per connected component
   Sector all;                       // every state (used when ψ occupies several sectors)
@@ -87,8 +98,10 @@ struct Buffers {
 
 struct StretchCache {
   Buffers buffers;
-  std::uint64_t owner = 0;  // Integrator::id_ of the cached entries (0: none)
-  std::vector<std::shared_ptr<Stretch>> entries;  // most recently used last
+  // Most recently used last. Entries of earlier Integrators stay: a new one whose stretch has
+  // the same signature (e.g. the next atom of a beam, same sublevels and couplings, other
+  // arrival time) reuses their matrices and decompositions.
+  std::vector<std::shared_ptr<Stretch>> entries;
   static constexpr std::size_t kCapacity = 16;
 };
 
@@ -230,6 +243,8 @@ void build_sectors(Stretch& s) {
         f.col.push_back(int(e.col));
         f.slot.push_back(e.slot);
         f.val.push_back(e.v.real());
+        f.val.push_back(e.v.real());
+        f.val.push_back(e.v.imag());
         f.val.push_back(e.v.imag());
       }
       f.row_start.push_back(int(f.col.size()));
@@ -241,6 +256,88 @@ void build_sectors(Stretch& s) {
   } else {
     fuse(s.all);
   }
+}
+
+// What build_stretch's matrices depend on, as numbers (exact comparison, no hashing): the
+// options that decide the propagator, the present subsystems and their bases, the controls, and
+// every Hamiltonian term and channel active in the layout (coefficient constant, control,
+// conjugation, which distinct time function — by order of first use, not identity — and the
+// operator's weights and local matrices, nonzeros only).
+std::vector<double> stretch_signature(const Model& m, const Options& opt, const space::Layout& layout,
+                                      const std::vector<Complex>& controls) {
+  std::vector<double> sig;
+  auto cplx = [&](Complex c) {
+    sig.push_back(c.real());
+    sig.push_back(c.imag());
+  };
+  auto op_sig = [&](const operators::Operator& op) {
+    sig.push_back(double(op.terms().size()));
+    for (const auto& pt : op.terms()) {
+      cplx(pt.weight);
+      sig.push_back(double(pt.factors.size()));
+      for (const auto& f : pt.factors) {
+        sig.push_back(double(f.target));
+        sig.push_back(double(f.matrix.rows()));
+        sig.push_back(double(f.matrix.cols()));
+        const Complex* d = f.matrix.data();
+        for (long k = 0; k < f.matrix.size(); ++k)
+          if (d[k] != Complex(0.0)) {
+            sig.push_back(double(k));
+            cplx(d[k]);
+          }
+        sig.push_back(-1.0);
+      }
+    }
+  };
+  sig.push_back(opt.exact_exponential ? 1.0 : 0.0);
+  sig.push_back(double(opt.max_exact_dimension));
+  sig.push_back(opt.max_eigenvector_condition);
+  sig.push_back(m.max_excitation ? double(*m.max_excitation) : -1.0);
+  sig.push_back(double(layout.present().size()));
+  for (auto id : layout.present()) {
+    const auto& sub = m.subsystems[std::size_t(id)];
+    sig.push_back(double(id));
+    sig.push_back(sub.kind == space::SubsystemKind::kMode ? 1.0 : 0.0);
+    sig.push_back(double(sub.dimension));
+    for (int k = 0; k < sub.dimension; ++k) sig.push_back(double(sub.excitation_of(k)) + (sub.is_allowed(k) ? 0.0 : 0.5));
+  }
+  sig.push_back(double(controls.size()));
+  for (auto c : controls) cplx(c);
+  std::vector<const operators::TimeFunction*> fns;
+  for (const auto& term : m.hamiltonian.terms()) {
+    if (!term.op.active_in(layout)) continue;
+    const auto& c = term.coefficient;
+    cplx(c.constant);
+    sig.push_back(c.control ? double(*c.control) : -1.0);
+    sig.push_back(c.conjugate ? 1.0 : 0.0);
+    double fi = -1.0;
+    if (c.time_dependent()) {
+      const auto* f = c.time_fn.get();
+      fi = double(std::find(fns.begin(), fns.end(), f) - fns.begin());
+      if (std::size_t(fi) == fns.size()) fns.push_back(f);
+    }
+    sig.push_back(fi);
+    op_sig(term.op);
+  }
+  sig.push_back(-2.0);
+  for (std::size_t k = 0; k < m.channels.size(); ++k) {
+    if (!m.channels[k].op.active_in(layout)) continue;
+    sig.push_back(double(k));
+    op_sig(m.channels[k].op);
+  }
+  return sig;
+}
+
+// The distinct time functions of the terms active in `layout`, in order of first use (the
+// order build_stretch numbers them in).
+std::vector<const operators::TimeFunction*> stretch_time_functions(const Model& m, const space::Layout& layout) {
+  std::vector<const operators::TimeFunction*> fns;
+  for (const auto& term : m.hamiltonian.terms()) {
+    if (!term.op.active_in(layout) || !term.coefficient.time_dependent()) continue;
+    const auto* f = term.coefficient.time_fn.get();
+    if (std::find(fns.begin(), fns.end(), f) == fns.end()) fns.push_back(f);
+  }
+  return fns;
 }
 
 std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const std::vector<SubsystemId>& present,
@@ -276,6 +373,16 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
     timed_h[g].prune(Complex(0.0));
     s->timed[g].norm = timed_h[g].norm();
     s->timed[g].rhs = -kI * timed_h[g];
+  }
+  s->hermitian_by_structure = true;
+  for (std::size_t g = 0; g < s->timed.size() && s->hermitian_by_structure; ++g) {
+    bool paired = false;
+    for (std::size_t q = 0; q < s->timed.size() && !paired; ++q) {
+      if (s->timed[q].fn != s->timed[g].fn || s->timed[q].conjugate == s->timed[g].conjugate) continue;
+      const double diff = SparseMatrix(timed_h[q] - SparseMatrix(timed_h[g].adjoint())).norm();
+      paired = diff <= 1e-12 * std::max(1.0, timed_h[g].norm());
+    }
+    s->hermitian_by_structure = paired;
   }
   // Hermiticity of H at the stretch start (a model error, not numerical trouble).
   {
@@ -416,30 +523,61 @@ Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t
   return leg;
 }
 
-// out = Σ_slot φ_slot · M_slot · in for a fused compressed-row matrix (Stretch::FusedRhs), in real
-// arithmetic: std::complex products call the NaN-checking __muldc3, and this loop is where moving
-// atoms spend most of their time (docs/performance.md). One pass over the rows for all slots,
-// with separate accumulators for the two products of each real and imaginary part so that
-// consecutive entries do not wait for each other's additions.
-void fused_apply(const Stretch::FusedRhs& f, const double* phi, const double* in, double* out) {
+// out = Σ_slot φ_slot · M_slot · in for a fused compressed-row matrix (Stretch::FusedRhs). This
+// loop is where moving atoms spend most of their time (docs/performance.md), so it is written
+// with two-lane vectors (GCC/Clang vector extensions, plain SSE2 on x86-64): an amplitude is one
+// [re, im] lane pair, and w·x = w_r·[x_r, x_i] + w_i·[−x_i, x_r] with xs = [−x_i, x_r] formed once
+// per call, so an entry costs two lane-wise products and additions with no shuffles; the slot
+// factor φ scales w first (one product per lane when every φ is real, the usual case for
+// Gaussian envelopes and standing waves). Lane-wise operations in a fixed order: the result does
+// not depend on the vector unit. `xs` is scratch of the size of `in`.
+using Lanes = double __attribute__((vector_size(16)));
+
+Lanes load2(const double* p) {
+  Lanes v;
+  std::memcpy(&v, p, sizeof v);
+  return v;
+}
+
+void fused_apply(const Stretch::FusedRhs& f, const Complex* phi, std::size_t slots, const double* in, double* xs,
+                 double* out) {
+  const long rows = long(f.row_start.size()) - 1;
+  for (long j = 0; j < rows; ++j) {
+    xs[2 * j] = -in[2 * j + 1];
+    xs[2 * j + 1] = in[2 * j];
+  }
+  bool real = true;
+  for (std::size_t q = 0; q < slots; ++q) real = real && phi[q].imag() == 0.0;
   const int* rs = f.row_start.data();
   const int* col = f.col.data();
   const int* slot = f.slot.data();
   const double* val = f.val.data();
-  const long rows = long(f.row_start.size()) - 1;
-  for (long i = 0; i < rows; ++i) {
-    double ar0 = 0, ar1 = 0, ai0 = 0, ai1 = 0;
-    for (int k = rs[i]; k < rs[i + 1]; ++k) {
-      const double pr = phi[2 * slot[k]], pi = phi[2 * slot[k] + 1];
-      const double vr = pr * val[2 * k] - pi * val[2 * k + 1], vi = pr * val[2 * k + 1] + pi * val[2 * k];
-      const double xr = in[2 * col[k]], xi = in[2 * col[k] + 1];
-      ar0 += vr * xr;
-      ar1 += vi * xi;
-      ai0 += vr * xi;
-      ai1 += vi * xr;
+  if (real) {
+    double pr[64];
+    const bool small = slots <= 64;
+    for (std::size_t q = 0; q < slots && small; ++q) pr[q] = phi[q].real();
+    for (long i = 0; i < rows; ++i) {
+      Lanes a = {0, 0}, b = {0, 0};
+      for (int k = rs[i]; k < rs[i + 1]; ++k) {
+        const double p = small ? pr[slot[k]] : phi[slot[k]].real();
+        const Lanes wr = load2(val + 4 * k) * p, wi = load2(val + 4 * k + 2) * p;
+        a += wr * load2(in + 2 * col[k]);
+        b += wi * load2(xs + 2 * col[k]);
+      }
+      std::memcpy(out + 2 * i, &(a += b), sizeof a);
     }
-    out[2 * i] = ar0 - ar1;
-    out[2 * i + 1] = ai0 + ai1;
+    return;
+  }
+  for (long i = 0; i < rows; ++i) {
+    Lanes a = {0, 0}, b = {0, 0};
+    for (int k = rs[i]; k < rs[i + 1]; ++k) {
+      const double qr = phi[slot[k]].real(), qi = phi[slot[k]].imag();
+      const Lanes vr = load2(val + 4 * k), vi = load2(val + 4 * k + 2);
+      const Lanes wr = vr * qr - vi * qi, wi = vi * qr + vr * qi;
+      a += wr * load2(in + 2 * col[k]);
+      b += wi * load2(xs + 2 * col[k]);
+    }
+    std::memcpy(out + 2 * i, &(a += b), sizeof a);
   }
 }
 
@@ -471,11 +609,12 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
   const long n = long(sec->states.size());
   std::vector<Complex> fv(s.fns.size());
   std::vector<Complex> phi(s.timed.size() + 1, Complex(1.0));
+  std::vector<double> xs(2 * std::size_t(n));
   auto system = [&](const StateVec& x, StateVec& dxdt, double t) {
     for (std::size_t k = 0; k < fv.size(); ++k) fv[k] = (*s.fns[k])(t);
     for (std::size_t g = 0; g < s.timed.size(); ++g)
       phi[g + 1] = s.timed[g].conjugate ? std::conj(fv[s.timed[g].fn]) : fv[s.timed[g].fn];
-    fused_apply(sec->rhs, reinterpret_cast<const double*>(phi.data()), x.data(), dxdt.data());
+    fused_apply(sec->rhs, phi.data(), phi.size(), x.data(), xs.data(), dxdt.data());
   };
   StateVec x(2 * n);
   if (whole) {
@@ -619,10 +758,6 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
   const Model& m = *model_;
   const Options& opt = options_;
   StretchCache& cache = *workspace.cache_;
-  if (cache.owner != id_) {
-    cache.entries.clear();
-    cache.owner = id_;
-  }
   TrajectoryResult result;
   Run run{&opt, &cache.buffers, {}};
   result.samples.assign(opt.sample_times_us.size(),
@@ -644,14 +779,32 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
   auto stretch_for = [&](double t) -> const Stretch& {
     for (std::size_t k = cache.entries.size(); k-- > 0;) {
       auto& e = cache.entries[k];
-      if (e->present == layout.present() && e->controls == controls) {
+      if (e->owner == id_ && e->present == layout.present() && e->controls == controls) {
         auto hit = e;
         cache.entries.erase(cache.entries.begin() + long(k));
         cache.entries.push_back(hit);
         return *cache.entries.back();
       }
     }
+    // Another Integrator's stretch with the same matrices: rebind its model-owned parts.
+    space::Layout probe(&m.subsystems, layout.present(), m.max_excitation);
+    std::vector<double> sig = stretch_signature(m, opt, probe, controls);
+    for (std::size_t k = cache.entries.size(); k-- > 0;) {
+      auto e = cache.entries[k];
+      if (!e->hermitian_by_structure || e->signature != sig) continue;
+      e->owner = id_;
+      e->present = layout.present();
+      e->controls = controls;
+      e->layout = std::move(probe);
+      e->fns = stretch_time_functions(m, e->layout);
+      e->leak = ExcitationLeak::build(m, e->layout, controls);
+      cache.entries.erase(cache.entries.begin() + long(k));
+      cache.entries.push_back(std::move(e));
+      return *cache.entries.back();
+    }
     auto s = build_stretch(m, opt, layout.present(), controls, t, run.summary);
+    s->signature = std::move(sig);
+    s->owner = id_;
     if (cache.entries.size() >= StretchCache::kCapacity) cache.entries.erase(cache.entries.begin());
     cache.entries.push_back(std::move(s));
     return *cache.entries.back();
