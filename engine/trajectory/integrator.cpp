@@ -14,6 +14,7 @@
 
 #include "engine/common/errors.h"
 #include "engine/trajectory/excitation_leak.h"
+#include "engine/trajectory/phase_factors.h"
 
 namespace flyby::trajectory {
 
@@ -465,13 +466,8 @@ Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t
   // constant decay rate h is linear, so Newton's method on h converges in one or two steps.
   double nn = 0;
   auto eval = [&](double tau, double& h, double& hp) {
-    for (long k = 0; k < n; ++k) {
-      // e^{−iλτ} = e^{Im λ·τ} (cos(Re λ·τ) − i sin(Re λ·τ)), without the special cases of cexp.
-      const double amp = std::exp(s.lambda_im[k] * tau), ph = s.lambda_re[k] * tau;
-      const double cr = amp * std::cos(ph), ci = -amp * std::sin(ph);
-      const Complex c = w.coef[k];
-      w.x[k] = Complex(c.real() * cr - c.imag() * ci, c.real() * ci + c.imag() * cr);
-    }
+    // e^{−iλτ} = e^{Im λ·τ} (cos(Re λ·τ) − i sin(Re λ·τ)), two eigenvalues at a time.
+    phase_factors(s.lambda_re.data(), s.lambda_im.data(), tau, w.coef.data(), w.x.data(), n);
     w.tmp.noalias() = s.v * w.x;
     ++run.summary.exponential_evaluations;
     run.monitor(s, w.tmp);
