@@ -82,6 +82,9 @@ struct Stretch {
   std::vector<std::pair<SubsystemId, int>> modes;  // (mode id, index of its top Fock state)
   bool exact = false;
   Eigen::MatrixXcd v, v_inv;
+  // V row by row as [Re, Im, −Im, Re] per entry, for the two-lane product V·x of every
+  // evaluation (dense_apply).
+  std::vector<double> v_lanes;
   Eigen::VectorXcd lambda;
   std::shared_ptr<const ExcitationLeak> leak;  // set when the layout is excitation-restricted
   Eigen::VectorXd lambda_re, lambda_im;  // Re λ, Im λ (≤ 0) of the eigenvalues of H_eff
@@ -93,6 +96,7 @@ struct Stretch {
 // Scratch vectors reused across jumps and trajectories of one thread (no allocation per jump).
 struct Buffers {
   Vector coef, x, tmp, dtmp;
+  std::vector<double> xlanes;
   std::vector<Vector> cpsi;
   std::vector<double> weights;
 };
@@ -427,6 +431,15 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
       s->lambda_scale = s->lambda.cwiseAbs().maxCoeff();
       Eigen::PartialPivLU<Eigen::MatrixXcd> lu(s->v);
       s->v_inv = lu.inverse();
+      s->v_lanes.resize(4 * std::size_t(n * n));
+      for (long i = 0; i < n; ++i)
+        for (long j = 0; j < n; ++j) {
+          double* e = s->v_lanes.data() + 4 * (i * n + j);
+          e[0] = s->v(i, j).real();
+          e[1] = s->v(i, j).imag();
+          e[2] = -s->v(i, j).imag();
+          e[3] = s->v(i, j).real();
+        }
       const double cond = s->v.norm() * s->v_inv.norm() / double(n);
       s->exact = std::isfinite(cond) && cond <= opt.max_eigenvector_condition;
     }
@@ -444,6 +457,34 @@ struct Tolerance {
   double tol;
   bool operator()(double a, double b) const { return std::abs(b - a) <= tol; }
 };
+
+// y = V·x for the exact propagator (Stretch::v_lanes): row i is Σ_j [Re V, Im V]·Re x_j +
+// [−Im V, Re V]·Im x_j in two-lane vectors, with the broadcast [Re x_j, Re x_j, Im x_j, Im x_j]
+// formed once per call in `xl`; a fixed order of lane-wise operations (machine independent).
+// Replaces Eigen's complex matrix–vector product, a quarter of the time of small atoms.
+void dense_apply(const double* vl, long n, const Complex* x, Complex* y, std::vector<double>& xl) {
+  using Lanes = double __attribute__((vector_size(16)));
+  xl.resize(4 * std::size_t(n));
+  for (long j = 0; j < n; ++j) {
+    xl[std::size_t(4 * j)] = xl[std::size_t(4 * j + 1)] = x[j].real();
+    xl[std::size_t(4 * j + 2)] = xl[std::size_t(4 * j + 3)] = x[j].imag();
+  }
+  auto load = [](const double* p) {
+    Lanes v;
+    std::memcpy(&v, p, sizeof v);
+    return v;
+  };
+  for (long i = 0; i < n; ++i) {
+    const double* row = vl + 4 * i * n;
+    Lanes a = {0, 0}, b = {0, 0};
+    for (long j = 0; j < n; ++j) {
+      a += load(row + 4 * j) * load(xl.data() + 4 * j);
+      b += load(row + 4 * j + 2) * load(xl.data() + 4 * j + 2);
+    }
+    a += b;
+    y[i] = Complex(a[0], a[1]);
+  }
+}
 
 Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t1, double r) {
   Leg leg;
@@ -468,7 +509,7 @@ Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t
   auto eval = [&](double tau, double& h, double& hp) {
     // e^{−iλτ} = e^{Im λ·τ} (cos(Re λ·τ) − i sin(Re λ·τ)), two eigenvalues at a time.
     phase_factors(s.lambda_re.data(), s.lambda_im.data(), tau, w.coef.data(), w.x.data(), n);
-    w.tmp.noalias() = s.v * w.x;
+    dense_apply(s.v_lanes.data(), n, w.x.data(), w.tmp.data(), w.xlanes);
     ++run.summary.exponential_evaluations;
     run.monitor(s, w.tmp);
     nn = w.tmp.squaredNorm();
