@@ -665,12 +665,34 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
   const Options& opt = *run.options;
   auto stepper = odeint::make_dense_output(opt.atol, opt.rtol, opt.max_step_us.value_or(0.0),
                                            odeint::runge_kutta_dopri5<StateVec>());
-  double bound = s.heff_const.norm();
-  for (const auto& g : s.timed) bound += std::abs((*s.fns[g.fn])(t0)) * g.norm;
   // Start from the step the controller reached before (a jump or an event rarely changes the
-  // fastest frequency much; a too long step is simply rejected and shortened), else from a
-  // conservative 1 % of the inverse norm of H_eff.
-  double dt0 = std::min(t1 - t0, run.last_step_us > 0 ? run.last_step_us : 0.01 / std::max(bound, 1e-12));
+  // fastest frequency much; a too long step is simply rejected and shortened), else — the first
+  // adaptive stretch of a trajectory, e.g. an atom entering — from the starting step of Hairer,
+  // Nørsett & Wanner, Solving Ordinary Differential Equations I, 2nd ed., Sec. II.4 (two
+  // right-hand sides; the error norm of the controller, order p = 4 of the error estimate). A
+  // guess of 1 % of 1/‖H_eff‖ spent five or six steps growing by the controller's factor 5 per
+  // step at every atom.
+  double dt0 = run.last_step_us;
+  if (!(dt0 > 0)) {
+    StateVec f0(2 * n), x1(2 * n), f1(2 * n);
+    system(x, f0, t0);
+    double d0 = 0, d1 = 0;
+    for (std::size_t i = 0; i < x.size(); ++i) {
+      const double sc = opt.atol + opt.rtol * std::abs(x[i]);
+      d0 = std::max(d0, std::abs(x[i]) / sc);
+      d1 = std::max(d1, std::abs(f0[i]) / sc);
+    }
+    const double h0 = (d0 < 1e-5 || d1 < 1e-5) ? 1e-6 * (t1 - t0) : 0.01 * d0 / d1;
+    for (std::size_t i = 0; i < x.size(); ++i) x1[i] = x[i] + h0 * f0[i];
+    system(x1, f1, t0 + h0);
+    double d2 = 0;
+    for (std::size_t i = 0; i < x.size(); ++i)
+      d2 = std::max(d2, std::abs(f1[i] - f0[i]) / (opt.atol + opt.rtol * std::abs(x[i])) / h0);
+    const double dmax = std::max(d1, d2);
+    const double h1 = dmax <= 1e-15 ? std::max(1e-6 * (t1 - t0), h0 * 1e-3) : std::pow(0.01 / dmax, 1.0 / 5.0);
+    dt0 = std::min(100 * h0, h1);
+  }
+  dt0 = std::min(t1 - t0, dt0);
   if (opt.max_step_us) dt0 = std::min(dt0, *opt.max_step_us);
   stepper.initialize(x, t0, dt0);
   StateVec xi(2 * n);
