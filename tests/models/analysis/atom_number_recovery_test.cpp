@@ -12,9 +12,8 @@
 #include <string>
 
 #include "models/analysis/record_analysis.h"
-#include "models/config/scenario_config.h"
-#include "models/simulation/simulation.h"
 #include "tests/engine/engine_test_models.h"
+#include "tests/support/scenario_text.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
@@ -22,48 +21,19 @@ namespace {
 
 using flyby::test::ScratchDir;
 
-constexpr double kSpeed_m_per_s = 2.0, kWaist_um = 20.0, kSlit_um = 200.0, kGamma_MHz = 6.0, kRabi_MHz = 0.6;
+// The beam of record_analysis_test.cpp: the defaults of flyby::test::BeamScenario.
+const flyby::test::BeamScenario kBeam;
+const double kSpeed_m_per_s = kBeam.speed_m_per_s, kWaist_um = kBeam.waist_um, kSlit_um = *kBeam.slit_width_um,
+             kGamma_MHz = kBeam.gamma_MHz, kRabi_MHz = kBeam.rabi_MHz;
 
+// That beam at another flux.
 std::string config(std::uint64_t seed, double flux_per_s, double duration_s) {
-  return R"(
-[atom]
-species = "custom"
-ground_F = 0
-excited_F = 1
-gamma_MHz = 6.0
-wavelength_nm = 780.0
-mass_u = 87.0
-ground_gF = 0.0
-excited_gF = 0.0
-[field]
-axis_when_zero_dir = [0, 1, 0]
-[[drive]]
-name = "probe"
-kind = "side"
-direction_dir = [0, 0, 1]
-polarization = "linear"
-polarization_dir = [0, 1, 0]
-waist_um = 20.0
-rabi_MHz = 0.6
-[[channel]]
-name = "det"
-source = "free_space"
-direction_dir = [1, 0, 0]
-polarization = "unpolarized"
-solid_angle_sr = 4.0
-efficiency_fraction = 1.0
-[source]
-kind = "beam"
-speed_distribution = "monochromatic"
-speed_m_per_s = 2.0
-transverse_profile = "slit"
-slit_width_um = 200
-axial_extent_um = 100
-flux_per_s = )" + std::to_string(flux_per_s) + R"(
-[run]
-duration_s = )" + std::to_string(duration_s) + "\nseed_id = " + std::to_string(seed) + R"(
-relative_tolerance_fraction = 1e-4
-)";
+  flyby::test::BeamScenario o;
+  o.seed = seed;
+  o.duration_s = duration_s;
+  o.flux_per_s = flux_per_s;
+  o.run_lines = "relative_tolerance_fraction = 1e-4\n";
+  return flyby::test::beam_scenario_text(o);
 }
 
 }  // namespace
@@ -80,10 +50,8 @@ TEST_CASE("flyby analyze recovers the configured mean atom number of Poisson bea
     // N_eff × duration for N_eff ≳ 1 and needs more pairs below.
     const double duration_s = 0.003 * std::max(1.0, 1.5 / n_eff) * (n_eff < 1 ? 2.0 : 1.0);
     const std::string name = "beam" + std::to_string(int(n_eff * 10));
-    const auto s = flyby::config::check_scenario(flyby::config::parse_config(config(seed, flux_per_s, duration_s), name));
-    flyby::simulation::Options so;
-    so.output_path = (d / (name + ".h5")).string();
-    const auto sum = flyby::simulation::simulate(s, so);
+    const auto path = (d / (name + ".h5")).string();
+    const auto sum = flyby::test::simulate_text(config(seed, flux_per_s, duration_s), name, path, 0);
     REQUIRE(sum.ok);
     flyby::analysis::RecordAnalysisOptions o;
     o.bin_width_ns = 500;
@@ -91,7 +59,7 @@ TEST_CASE("flyby analyze recovers the configured mean atom number of Poisson bea
     o.tau_min_ns = 400;  // single-atom antibunching (≈ 1/Γ) left out: g2_1 = 1 beyond it
     o.model = "level+transit_gauss";
     o.threads = 1;
-    const auto a = flyby::analysis::analyze_record(so.output_path, o);
+    const auto a = flyby::analysis::analyze_record(path, o);
     REQUIRE(a.atoms_effective);
     REQUIRE(std::isfinite(a.atoms_effective->value));
     REQUIRE(std::isfinite(a.atoms_effective->std_error));
@@ -99,6 +67,6 @@ TEST_CASE("flyby analyze recovers the configured mean atom number of Poisson bea
                              << a.atoms_effective->std_error << " (" << sum.atoms << " atoms, " << duration_s << " s)");
     CHECK(std::abs(a.atoms_effective->value - n_eff) < 5 * a.atoms_effective->std_error);
     CHECK(a.atoms_effective->std_error < 0.5 * n_eff);  // the run resolves N_eff at all
-    std::filesystem::remove(so.output_path);
+    std::filesystem::remove(path);
   }
 }
