@@ -5,17 +5,20 @@
 # Every point: flyby simulate → flyby correlate (autocorrelation) → flyby fit --model beats.
 # Usage: tools/study-atom-number.sh [FLYBY] [OUTDIR]   (defaults: build/tools/flyby, out/study-atom-number)
 # Writes OUTDIR/points.csv and the figures docs/figures/study-atom-number-*.png.
+# The grid and the lab time per point can be changed through the environment:
+#   STUDY_TRANSITS_US="2.5 5 10"  STUDY_ATOMS="0.3 1 3"  STUDY_DURATION_S=0.03  STUDY_FIGURES=1
+# (STUDY_FIGURES=0: points.csv only, figures left as they are).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 flyby="${1:-build/tools/flyby}"
 out="${2:-out/study-atom-number}"
 mkdir -p "$out"
 waist_um=20
-duration_s=0.03
+duration_s="${STUDY_DURATION_S:-0.03}"
 echo "transit_us,mean_atoms_count,flux_per_s,tags_count,level,level_err,amplitude,amplitude_err,decay_us,decay_err,freq_MHz,freq_err" > "$out/points.csv"
-for transit_us in 2.5 5 10; do
+for transit_us in ${STUDY_TRANSITS_US:-2.5 5 10}; do
   speed=$(/usr/bin/python3 -c "print($waist_um / $transit_us)")          # µm/µs = m/s
-  for atoms in 0.3 1 3; do
+  for atoms in ${STUDY_ATOMS:-0.3 1 3}; do
     # Mean number of atoms within the 1/e² radius of the drive: N = flux · 2w/v.
     flux=$(/usr/bin/python3 -c "print($atoms / (2 * $transit_us) * 1e6)")
     tag="T${transit_us}_N${atoms}"
@@ -70,4 +73,6 @@ EOPY
     echo "done $tag" >&2
   done
 done
-/usr/bin/python3 tools/study-atom-number-plot.py "$out/points.csv" docs/figures
+if [ "${STUDY_FIGURES:-1}" = 1 ]; then
+  /usr/bin/python3 tools/study-atom-number-plot.py "$out/points.csv" docs/figures
+fi
