@@ -9,7 +9,6 @@
 // monochromatic beam of a two-level model atom (custom F = 0 → F′ = 1, π drive) crossing a weak
 // Gaussian side beam, free-space detection, for atom number and transit time.
 #include <catch2/catch.hpp>
-#include <gsl/gsl_cdf.h>
 
 #include <cmath>
 #include <filesystem>
@@ -25,10 +24,12 @@
 #include "models/analysis/scenario_plan.h"
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
+#include "tests/support/coverage.h"
 #include "tests/support/scenario_text.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
+using flyby::test::binomial_region;
 using flyby::test::ScratchDir;
 
 namespace {
@@ -93,16 +94,11 @@ std::string simulate(const ScratchDir& d, const std::string& name, const std::st
   return path;
 }
 
-// Two-sided binomial acceptance region for k successes of n at probability p, each tail ≤ alpha.
-std::pair<int, int> binomial_region(int n, double p, double alpha) {
-  int lo = 0, hi = n;
-  while (lo < n && gsl_cdf_binomial_P(static_cast<unsigned>(lo), p, static_cast<unsigned>(n)) < alpha) ++lo;
-  while (hi > 0 && gsl_cdf_binomial_Q(static_cast<unsigned>(hi - 1), p, static_cast<unsigned>(n)) < alpha) --hi;
-  return {lo, hi};
-}
-
-// Standard normal ±1σ coverage: erf(1/√2) = 0.682689 (any statistics handbook [memory]).
-const double kOneSigmaCoverage = std::erf(1 / std::sqrt(2.0));
+// ±1σ coverage of the reported errors: they are jackknife errors over B time blocks, so the pull
+// follows Student's t with B − 1 degrees of freedom (0.657 for B = 10; the normal value
+// erf(1/√2) = 0.683 only for B → ∞).
+const double kOneSigmaCoverage =
+    flyby::test::one_sigma_coverage_t(flyby::analysis::RecordAnalysisOptions{}.jackknife_blocks - 1);
 
 }  // namespace
 
