@@ -78,6 +78,17 @@ struct Summary {
   // CPU seconds (all threads) each rank spent computing its blocks (rank 0's summary only):
   // Σ / (ranks · max) is the load balance, independent of other load on the machine.
   std::vector<double> rank_compute_cpu_s;
+  // Wall seconds of this process per phase of the run (rank 0's view; docs/performance.md):
+  // which parts are serial and which run on all threads and ranks.
+  struct PhaseTimes {
+    double setup_s = 0.0;    // per-scenario matrices, detector chain and record set-up (serial)
+    double plan_s = 0.0;     // arrivals, clusters, work items and blocks (serial, on every rank)
+    double compute_s = 0.0;  // this process's own blocks (parallel over threads)
+    double wait_s = 0.0;     // rank 0: waiting for and decoding other ranks' blocks
+    double merge_s = 0.0;    // rank 0: per-item statistics and the time-ordered photon merge (serial)
+    double detect_s = 0.0;   // rank 0: detector chain (serial)
+    double write_s = 0.0;    // rank 0: record writer, incl. the final commit (serial)
+  } phase_wall_s;
 
   std::string brief_report() const;
   std::string full_report() const;
