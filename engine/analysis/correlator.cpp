@@ -66,7 +66,8 @@ Correlator::Correlator(CorrelatorOptions options) : opt_(std::move(options)) {
   autocorr_ = opt_.start_channel == opt_.stop_channel;
   conditions_ = !opt_.start_windows.empty() || opt_.herald.has_value();
   threads_ = std::max(1, opt_.threads > 0 ? opt_.threads : omp_get_max_threads());
-  hist_.assign(static_cast<std::size_t>(threads_), std::vector<std::uint64_t>(2 * static_cast<std::size_t>(half_bins_) + 1, 0));
+  // 2K+1 bins and one spare bin for counts that do not apply (count_pair).
+  hist_.assign(static_cast<std::size_t>(threads_), std::vector<std::uint64_t>(2 * static_cast<std::size_t>(half_bins_) + 2, 0));
 }
 
 namespace {
@@ -197,7 +198,128 @@ void sweep_auto(const std::int64_t* st, const std::uint8_t* su, std::size_t a, s
   }
 }
 
+// Role bits of a channel for a plain correlation: bit 0 start, bit 1 stop (both: autocorrelation).
+template <class Ch>
+inline unsigned role_of(Ch c, int cs, int cp) {
+  const int ci = static_cast<int>(c);
+  return static_cast<unsigned>(ci == cs) | (static_cast<unsigned>(ci == cp) << 1);
+}
+
+// A pair of the later tag (role r) with an earlier one (role rj) d >= 0 before it: (start
+// earlier, stop later) at τ = +d, (start later, stop earlier) at τ = −d. Without branches on
+// the roles or the range (tags of the two channels alternate at random, so a branch would
+// mispredict about every other time): a count that does not apply goes to the spare bin
+// h[trash] past the histogram.
+template <bool kFast>
+inline void count_pair(unsigned r, unsigned rj, std::int64_t d, const Binner& bin, std::uint64_t* h,
+                       std::uint64_t trash) {
+  const auto u1 = static_cast<std::uint64_t>(2 * d + bin.offset);
+  const auto u2 = static_cast<std::uint64_t>(-2 * d + bin.offset);
+  const bool ok1 = ((r >> 1) & rj & 1u) != 0 && u1 < bin.limit;
+  const bool ok2 = (r & (rj >> 1) & 1u) != 0 && u2 < bin.limit;
+  std::uint64_t k1, k2;
+  if constexpr (kFast) {
+    __extension__ using u128 = unsigned __int128;
+    k1 = static_cast<std::uint64_t>((static_cast<u128>(bin.magic) * u1) >> 64);
+    k2 = static_cast<std::uint64_t>((static_cast<u128>(bin.magic) * u2) >> 64);
+  } else {
+    k1 = u1 / bin.divisor;
+    k2 = u2 / bin.divisor;
+  }
+  ++h[ok1 ? k1 : trash];
+  ++h[ok2 ? k2 : trash];
+}
+
+// Stream walk over tags [a, b) of a chunk (see correlator.h): each tag pairs with the earlier
+// tags of the chunk and then of the kept tail (tt/tr, tn entries) within L. Tags of other
+// channels walk too (role 0 counts nothing): cheaper than a branch on the channel. Returns the
+// start and stop tags of [a, b).
+template <bool kFast, class Ch>
+std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* c, std::size_t a, std::size_t b,
+                                               const std::int64_t* tt, const std::uint8_t* tr, std::size_t tn, int cs,
+                                               int cp, std::int64_t L, const Binner& bin, std::uint64_t* h,
+                                               std::uint64_t trash) {
+  std::size_t ns = 0, np = 0;
+  for (std::size_t i = a; i < b; ++i) {
+    const unsigned r = role_of(c[i], cs, cp);
+    ns += r & 1u;
+    np += (r >> 1) & 1u;
+    const std::int64_t ti = t[i];
+    const std::int64_t lim = sat_sub(ti, L);
+    std::size_t j = i;
+    while (j > 0 && t[j - 1] >= lim) {
+      --j;
+      count_pair<kFast>(r, role_of(c[j], cs, cp), ti - t[j], bin, h, trash);
+    }
+    if (j == 0) {
+      for (std::size_t k = tn; k > 0 && tt[k - 1] >= lim;) {
+        --k;
+        count_pair<kFast>(r, tr[k], ti - tt[k], bin, h, trash);
+      }
+    }
+  }
+  return {ns, np};
+}
+
 }  // namespace
+
+template <class Ch>
+void Correlator::walk(const std::int64_t* t, const Ch* c, std::size_t n) {
+  const int cs = opt_.start_channel, cp = opt_.stop_channel;
+  const std::int64_t L = lookback_ps_;
+  const Binner bin(opt_.bin_width_ps, half_bins_);
+  const int nt = static_cast<int>(
+      std::min<std::size_t>(static_cast<std::size_t>(threads_), std::max<std::size_t>(1, n / opt_.min_tags_per_thread)));
+  const std::int64_t* tt = tail_time_.data();
+  const std::uint8_t* tr = tail_role_.data();
+  const std::size_t tn = tail_time_.size();
+  std::vector<std::pair<std::size_t, std::size_t>> roles(static_cast<std::size_t>(nt));  // per thread
+  auto run = [&](auto fast) {
+    constexpr bool kF = decltype(fast)::value;
+#pragma omp parallel num_threads(nt) if (nt > 1)
+    {
+      // Each thread takes a contiguous share of the chunk; it looks back into the shares
+      // before it (read only), so the split does not change the pairs.
+      const auto tid = static_cast<std::size_t>(omp_get_thread_num());
+      const auto nth = static_cast<std::size_t>(omp_get_num_threads());
+      roles[tid] = walk_range<kF>(t, c, n * tid / nth, n * (tid + 1) / nth, tt, tr, tn, cs, cp, L, bin,
+                                  hist_[tid].data(), 2 * static_cast<std::uint64_t>(half_bins_) + 1);
+    }
+  };
+  if (bin.magic) run(std::true_type{});
+  else run(std::false_type{});
+  std::size_t ns = 0, np = 0;
+  for (const auto& [s, p] : roles) {
+    ns += s;
+    np += p;
+  }
+  n_start_seen_ += ns;
+  n_start_used_ += ns;
+  n_stop_ += np;
+  if (!first_time_) first_time_ = t[0];
+  last_time_ = t[n - 1];
+  n_tags_ += n;
+  peak_buffered_ = std::max(peak_buffered_, tail_time_.size() + ns + (autocorr_ ? 0 : np));
+
+  // Keep the start/stop tags that a later tag (at or after t[n−1]) can still reach.
+  const std::int64_t keep = sat_sub(t[n - 1], L);
+  const std::size_t from = static_cast<std::size_t>(std::lower_bound(t, t + n, keep) - t);
+  if (from == 0) {
+    const std::size_t drop =
+        static_cast<std::size_t>(std::lower_bound(tail_time_.begin(), tail_time_.end(), keep) - tail_time_.begin());
+    tail_time_.erase(tail_time_.begin(), tail_time_.begin() + static_cast<std::ptrdiff_t>(drop));
+    tail_role_.erase(tail_role_.begin(), tail_role_.begin() + static_cast<std::ptrdiff_t>(drop));
+  } else {
+    tail_time_.clear();
+    tail_role_.clear();
+  }
+  for (std::size_t i = from; i < n; ++i) {
+    const unsigned r = role_of(c[i], cs, cp);
+    if (r == 0) continue;
+    tail_time_.push_back(t[i]);
+    tail_role_.push_back(static_cast<std::uint8_t>(r));
+  }
+}
 
 template <class Ch>
 void Correlator::ingest(std::span<const std::int64_t> time_ps, std::span<const Ch> channel) {
@@ -220,6 +342,11 @@ void Correlator::ingest(std::span<const std::int64_t> time_ps, std::span<const C
       if (t[i] < prev)
         throw InputError("correlator: tags not sorted in time: tag " + std::to_string(n_tags_ + i) + " at " +
                          std::to_string(t[i]) + " ps follows " + std::to_string(prev) + " ps");
+  }
+
+  if (!conditions_) {
+    walk(t, c, n);
+    return;
   }
 
   // Split by channel into the lanes: every tag is written to each lane's next slot and the
@@ -394,9 +521,9 @@ CorrelationHistogram Correlator::finish() {
   CorrelationHistogram r;
   r.options = opt_;
   r.half_bins = half_bins_;
-  r.counts.assign(hist_[0].size(), 0);
+  r.counts.assign(2 * static_cast<std::size_t>(half_bins_) + 1, 0);  // without the spare bin
   for (const auto& h : hist_)
-    for (std::size_t b = 0; b < h.size(); ++b) r.counts[b] += h[b];
+    for (std::size_t b = 0; b < r.counts.size(); ++b) r.counts[b] += h[b];
   r.peak_buffered_tags = peak_buffered_;
   r.n_start_seen = n_start_seen_;
   r.n_start_used = n_start_used_;

@@ -7,11 +7,16 @@
 // A start may be restricted to time windows and to a heralding condition (a click in another
 // channel shortly before it). The normalization is g2 = counts / (N_start N_stop W / T).
 //
-// Cost is linear in the number of tags plus the number of counted pairs: each chunk is split
-// by channel into start, stop and herald lanes, then two-pointer sweeps over the sorted lanes
-// count the pairs with integer bin arithmetic. Tags arrive in chunks of any size; only the
+// Cost is linear in the number of tags plus the number of counted pairs, with integer bin
+// arithmetic. Plain correlations (no windows, no herald) take one pass over each chunk as it
+// is: every start or stop tag looks back through the earlier tags of the stream (the chunk,
+// then the kept tail of the previous chunks) while they are within the look-back span and
+// counts each start–stop pair once, when the later of its two tags arrives; at lab rates few
+// tags lie within the span, so this costs about one comparison per tag. With windows or a
+// herald, each chunk is split by channel into start, stop and herald lanes and two-pointer
+// sweeps over the sorted lanes count the pairs. Tags arrive in chunks of any size; only the
 // tags within the look-back span of the newest tag are kept between chunks, so records larger
-// than memory stream through. Inside a chunk the sweeps are split over OpenMP threads with a
+// than memory stream through. Inside a chunk the work is split over OpenMP threads with a
 // histogram per thread; counts are integers, so the summed histogram is exactly the same for
 // any thread count and any chunking.
 #pragma once
@@ -143,6 +148,8 @@ class Correlator {
   };
   template <class Ch>
   void ingest(std::span<const std::int64_t> time_ps, std::span<const Ch> channel);
+  template <class Ch>
+  void walk(const std::int64_t* t, const Ch* c, std::size_t n);
   void process(std::int64_t t_cut);
   void apply_conditions(std::size_t s_end);
   void trim(std::int64_t t_cut);
@@ -153,7 +160,11 @@ class Correlator {
   std::int64_t herald_lookback_ps_ = 0; // largest herald delay kept
   bool autocorr_ = false;
   bool conditions_ = false;             // windows or herald restrict the starts
-  Lane start_, stop_, herald_;          // stop_ unused for an autocorrelation
+  Lane start_, stop_, herald_;          // stop_ unused for an autocorrelation (lane method only)
+  // Plain correlations: start/stop tags within the look-back span of the newest tag, in stream
+  // order, with their roles (bit 0 start, bit 1 stop).
+  std::vector<std::int64_t> tail_time_;
+  std::vector<std::uint8_t> tail_role_;
   std::size_t herald_lo_ = 0;           // herald two-pointer (first herald not too old)
   std::size_t window_idx_ = 0;          // first window that does not end before the newest start
   int threads_ = 1;

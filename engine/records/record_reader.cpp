@@ -38,7 +38,9 @@ struct RecordReader::Impl {
   [[noreturn]] void fail(const std::string& msg) const { throw InputError(path.string() + ": " + msg); }
 
   void open();
-  void read_block(std::uint64_t first, std::size_t count, TagBlock& out);
+  // Reads and validates tags [first, first + count); with `seen`, also adds the tags per
+  // channel id to it (in the same pass).
+  void read_block(std::uint64_t first, std::size_t count, TagBlock& out, std::array<std::uint64_t, 256>* seen = nullptr);
   void validate_slowly(std::uint64_t first, const TagBlock& out) const;
 };
 
@@ -163,7 +165,8 @@ void RecordReader::Impl::open() {
   }
 }
 
-void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagBlock& out) {
+void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagBlock& out,
+                                    std::array<std::uint64_t, 256>* seen) {
   silence_hdf5_errors();  // per thread: the reader may be used on another thread than it was made on
   if (first >= n || count == 0) {
     out.clear();
@@ -180,7 +183,8 @@ void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagB
     out.clear();
     fail(e.message);
   }
-  // Fast pass without data-dependent branches (this loop runs on every tag of every analysis);
+  // One fast pass without data-dependent branches (this loop runs on every tag of every
+  // analysis): window, channel table, order and, for a sequential read, the tags per channel;
   // only a block that fails it is scanned again to name the first bad tag.
   const std::int64_t lo = header.start_ps;
   const std::int64_t span = header.duration_ps;
@@ -188,11 +192,30 @@ void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagB
   const std::int64_t* t = out.time_ps.data();
   const ChannelId* c = out.channel.data();
   bool bad = false;
-  for (std::size_t i = 0; i < count; ++i) {
-    // t >= lo makes the unsigned difference exact even where t - lo would overflow int64.
-    bad |= (t[i] < lo) | (static_cast<std::uint64_t>(t[i]) - ulo >= uspan) | (slot[c[i]] < 0);
+  // t >= lo makes the unsigned difference exact even where t - lo would overflow int64.
+  auto check = [&](std::size_t i, std::int64_t prev) {
+    return (t[i] < lo) | (static_cast<std::uint64_t>(t[i]) - ulo >= uspan) | (slot[c[i]] < 0) | (t[i] < prev);
+  };
+  if (seen) {
+    // Four count tables in turn: consecutive tags of one channel would otherwise wait for each
+    // other's increment of the same counter.
+    std::array<std::array<std::uint64_t, 256>, 4> n{};
+    std::size_t i = 0;
+    for (; i + 4 <= count; i += 4) {
+      bad |= check(i, i > 0 ? t[i - 1] : t[i]) | check(i + 1, t[i]) | check(i + 2, t[i + 1]) | check(i + 3, t[i + 2]);
+      ++n[0][c[i]];
+      ++n[1][c[i + 1]];
+      ++n[2][c[i + 2]];
+      ++n[3][c[i + 3]];
+    }
+    for (; i < count; ++i) {
+      bad |= check(i, i > 0 ? t[i - 1] : t[i]);
+      ++n[0][c[i]];
+    }
+    for (std::size_t k = 0; k < 256; ++k) (*seen)[k] += n[0][k] + n[1][k] + n[2][k] + n[3][k];
+  } else {
+    for (std::size_t i = 0; i < count; ++i) bad |= check(i, i > 0 ? t[i - 1] : t[i]);
   }
-  for (std::size_t i = 1; i < count; ++i) bad |= t[i] < t[i - 1];
   for (std::uint64_t k = (first + block_tags - 1) / block_tags; k * block_tags < first + count; ++k)
     bad |= index[k] != t[k * block_tags - first];
   if (bad) validate_slowly(first, out);
@@ -251,12 +274,9 @@ bool RecordReader::read_next(TagBlock& out, std::size_t max_tags) {
     out.clear();
     return false;
   }
-  m.read_block(m.pos, max_tags, out);
+  m.read_block(m.pos, max_tags, out, m.counting ? &m.seen : nullptr);
   if (m.prev_time && out.time_ps.front() < *m.prev_time) {
     m.fail("tags are not sorted in time: tag " + std::to_string(m.pos) + " is earlier than tag " + std::to_string(m.pos - 1));
-  }
-  if (m.counting) {
-    for (ChannelId c : out.channel) ++m.seen[c];
   }
   m.pos += out.size();
   m.prev_time = out.time_ps.back();

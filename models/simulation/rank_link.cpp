@@ -16,7 +16,7 @@ namespace flyby::simulation {
 #ifdef FLYBY_HAVE_MPI
 namespace {
 
-constexpr int kRequestTag = 7101;
+constexpr int kOrderTag = 7101;
 constexpr int kSizeTag = 7102;
 constexpr int kDataTag = 7103;
 // Bytes per MPI message: MPI counts are int, so a large block goes in several messages.
@@ -24,6 +24,17 @@ constexpr std::size_t kMaxMessageBytes = std::size_t(1) << 30;
 
 void check(int rc, const char* what) {
   if (rc != MPI_SUCCESS) throw InternalError(std::string("MPI error in ") + what);
+}
+
+// The worker's message in flight: its size and bytes stay alive until the sends complete.
+struct Outgoing {
+  unsigned long long size = 0;
+  std::vector<char> bytes;
+  std::vector<MPI_Request> requests;
+};
+Outgoing& outgoing() {
+  static Outgoing o;  // only the main thread of a worker sends
+  return o;
 }
 
 }  // namespace
@@ -39,15 +50,23 @@ RankInfo current_ranks() {
   return r;
 }
 
-void send_request(int rank, bool proceed) {
-  int flag = proceed ? 1 : 0;
-  check(MPI_Send(&flag, 1, MPI_INT, rank, kRequestTag, MPI_COMM_WORLD), "send_request");
+void send_order(int rank, const Order& order) {
+  unsigned long long msg[2] = {static_cast<unsigned long long>(order.kind), order.block};
+  check(MPI_Send(msg, 2, MPI_UNSIGNED_LONG_LONG, rank, kOrderTag, MPI_COMM_WORLD), "send_order");
 }
 
-bool block_waiting(int rank) {
+std::optional<int> message_waiting() {
   int flag = 0;
-  check(MPI_Iprobe(rank, kSizeTag, MPI_COMM_WORLD, &flag, MPI_STATUS_IGNORE), "block_waiting");
-  return flag != 0;
+  MPI_Status st;
+  check(MPI_Iprobe(MPI_ANY_SOURCE, kSizeTag, MPI_COMM_WORLD, &flag, &st), "message_waiting");
+  if (!flag) return std::nullopt;
+  return st.MPI_SOURCE;
+}
+
+int wait_for_message() {
+  MPI_Status st;
+  check(MPI_Probe(MPI_ANY_SOURCE, kSizeTag, MPI_COMM_WORLD, &st), "wait_for_message");
+  return st.MPI_SOURCE;
 }
 
 std::vector<char> receive_block(int rank) {
@@ -62,36 +81,52 @@ std::vector<char> receive_block(int rank) {
   return bytes;
 }
 
-bool request_waiting() {
+bool order_waiting() {
   int flag = 0;
-  check(MPI_Iprobe(0, kRequestTag, MPI_COMM_WORLD, &flag, MPI_STATUS_IGNORE), "request_waiting");
+  check(MPI_Iprobe(0, kOrderTag, MPI_COMM_WORLD, &flag, MPI_STATUS_IGNORE), "order_waiting");
   return flag != 0;
 }
 
-bool wait_for_request() {
-  int flag = 0;
-  check(MPI_Recv(&flag, 1, MPI_INT, 0, kRequestTag, MPI_COMM_WORLD, MPI_STATUS_IGNORE), "wait_for_request");
-  return flag != 0;
+Order receive_order() {
+  unsigned long long msg[2] = {0, 0};
+  check(MPI_Recv(msg, 2, MPI_UNSIGNED_LONG_LONG, 0, kOrderTag, MPI_COMM_WORLD, MPI_STATUS_IGNORE), "receive_order");
+  FLYBY_CHECK(msg[0] <= static_cast<unsigned long long>(Order::Kind::kStopAfterError), "unknown order from MPI rank 0");
+  return {static_cast<Order::Kind>(msg[0]), msg[1]};
 }
 
-void send_block(const std::vector<char>& bytes) {
-  unsigned long long n = bytes.size();
-  check(MPI_Send(&n, 1, MPI_UNSIGNED_LONG_LONG, 0, kSizeTag, MPI_COMM_WORLD), "send_block");
-  for (std::size_t off = 0; off < bytes.size(); off += kMaxMessageBytes) {
-    const int len = int(std::min<std::size_t>(kMaxMessageBytes, bytes.size() - off));
-    check(MPI_Send(bytes.data() + off, len, MPI_BYTE, 0, kDataTag, MPI_COMM_WORLD), "send_block");
+void finish_sends() {
+  Outgoing& o = outgoing();
+  if (!o.requests.empty())
+    check(MPI_Waitall(int(o.requests.size()), o.requests.data(), MPI_STATUSES_IGNORE), "finish_sends");
+  o.requests.clear();
+}
+
+void send_block(std::vector<char> bytes) {
+  finish_sends();
+  Outgoing& o = outgoing();
+  o.bytes = std::move(bytes);
+  o.size = o.bytes.size();
+  o.requests.emplace_back();
+  check(MPI_Isend(&o.size, 1, MPI_UNSIGNED_LONG_LONG, 0, kSizeTag, MPI_COMM_WORLD, &o.requests.back()), "send_block");
+  for (std::size_t off = 0; off < o.bytes.size(); off += kMaxMessageBytes) {
+    const int len = int(std::min<std::size_t>(kMaxMessageBytes, o.bytes.size() - off));
+    o.requests.emplace_back();
+    check(MPI_Isend(o.bytes.data() + off, len, MPI_BYTE, 0, kDataTag, MPI_COMM_WORLD, &o.requests.back()),
+          "send_block");
   }
 }
 
 #else  // no MPI at build time: always one process.
 
 RankInfo current_ranks() { return {}; }
-void send_request(int, bool) { throw InternalError("send_request without MPI"); }
-bool block_waiting(int) { throw InternalError("block_waiting without MPI"); }
+void send_order(int, const Order&) { throw InternalError("send_order without MPI"); }
+std::optional<int> message_waiting() { throw InternalError("message_waiting without MPI"); }
+int wait_for_message() { throw InternalError("wait_for_message without MPI"); }
 std::vector<char> receive_block(int) { throw InternalError("receive_block without MPI"); }
-bool request_waiting() { throw InternalError("request_waiting without MPI"); }
-bool wait_for_request() { throw InternalError("wait_for_request without MPI"); }
-void send_block(const std::vector<char>&) { throw InternalError("send_block without MPI"); }
+bool order_waiting() { throw InternalError("order_waiting without MPI"); }
+Order receive_order() { throw InternalError("receive_order without MPI"); }
+void send_block(std::vector<char>) { throw InternalError("send_block without MPI"); }
+void finish_sends() {}
 
 #endif
 

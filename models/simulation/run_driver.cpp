@@ -17,6 +17,7 @@
 #include <ctime>
 #include <deque>
 #include <exception>
+#include <future>
 #include <limits>
 #include <map>
 #include <mutex>
@@ -53,15 +54,41 @@ constexpr int kGapPieceShift = 40;
 constexpr std::size_t kBlocksPerRank = 32;
 // ... with at most this many items per block (bounds the photons held in memory).
 constexpr std::size_t kMaxBlockItems = 1024;
-// Finished blocks a rank may hold ahead of rank 0's requests (evens out unequal blocks).
+// Under MPI: blocks handed out or finished but not yet merged by rank 0, per rank (bounds the
+// blocks rank 0 holds while an earlier one is still being computed) ...
 constexpr std::size_t kBlocksAhead = 8;
+// ... and blocks a worker holds orders for (so it never waits for rank 0 between blocks, even
+// while rank 0 computes a block itself).
+constexpr std::size_t kOrdersPerWorker = 3;
 
 std::int64_t to_ps(double t_us) { return std::llround(t_us * 1e6); }
+
+// Wall-clock stopwatch for the phase times of the summary: lap() returns the seconds since the
+// previous lap (or construction) and starts the next one.
+class Lap {
+ public:
+  double lap() {
+    const auto now = std::chrono::steady_clock::now();
+    const double s = std::chrono::duration<double>(now - t_).count();
+    t_ = now;
+    return s;
+  }
+
+ private:
+  std::chrono::steady_clock::time_point t_ = std::chrono::steady_clock::now();
+};
 
 // CPU seconds used by this process so far (all threads).
 double process_cpu_s() {
   timespec ts{};
   clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+  return double(ts.tv_sec) + 1e-9 * double(ts.tv_nsec);
+}
+
+// CPU seconds used by the calling thread so far.
+double thread_cpu_s() {
+  timespec ts{};
+  clock_gettime(CLOCK_THREAD_CPUTIME_ID, &ts);
   return double(ts.tv_sec) + 1e-9 * double(ts.tv_nsec);
 }
 
@@ -99,7 +126,10 @@ struct Plan {
 
 // ---- byte encoding of a block's results (rank → rank 0) -----------------------------------
 
-enum class BlockStatus : std::uint8_t { kOk = 0, kInputError = 1, kIoError = 2, kInternalError = 3, kOther = 4 };
+// kClosing: a worker's last message (answer to a stop order); nothing follows it.
+enum class BlockStatus : std::uint8_t {
+  kOk = 0, kInputError = 1, kIoError = 2, kInternalError = 3, kOther = 4, kClosing = 5
+};
 
 class Encoder {
  public:
@@ -142,9 +172,10 @@ class Decoder {
   std::size_t pos_ = 0;
 };
 
-std::vector<char> encode_results(const std::vector<ItemResult>& results, double cpu_s) {
+std::vector<char> encode_results(std::uint64_t block, const std::vector<ItemResult>& results, double cpu_s) {
   Encoder e;
   e.pod(BlockStatus::kOk);
+  e.pod(block);
   e.pod(cpu_s);
   e.pod<std::uint64_t>(results.size());
   for (const auto& r : results) {
@@ -174,10 +205,17 @@ std::vector<char> encode_error(BlockStatus status, const std::string& message) {
   return std::move(e.bytes());
 }
 
-// Decodes a block; an error block is rethrown here as the exception type it was on its rank.
-std::vector<ItemResult> decode_results(const std::vector<char>& bytes, int rank, double& cpu_s) {
+std::vector<char> encode_closing() {
+  Encoder e;
+  e.pod(BlockStatus::kClosing);
+  return std::move(e.bytes());
+}
+
+// Decodes block `block`; an error block is rethrown here as the exception type it was on its rank.
+std::vector<ItemResult> decode_results(const std::vector<char>& bytes, int rank, std::uint64_t block, double& cpu_s) {
   Decoder d(bytes);
   const auto status = d.pod<BlockStatus>();
+  FLYBY_CHECK(status != BlockStatus::kClosing, "MPI rank sent its closing message before its last block");
   if (status != BlockStatus::kOk) {
     const std::string msg = d.str();
     switch (status) {
@@ -187,6 +225,7 @@ std::vector<ItemResult> decode_results(const std::vector<char>& bytes, int rank,
       default: throw std::runtime_error(msg + " (on MPI rank " + std::to_string(rank) + ")");
     }
   }
+  FLYBY_CHECK(d.pod<std::uint64_t>() == block, "MPI rank sent a block out of order");
   cpu_s = d.pod<double>();
   std::vector<ItemResult> out(d.pod<std::uint64_t>());
   for (auto& r : out) {
@@ -416,14 +455,29 @@ ItemResult run_item(const BlockContext& c, const Item& it, trajectory::Workspace
 }
 
 // `on_item(is_trajectory)` is called after each item, from any thread.
+//
+// The threads take the items of a block longest first (by the estimated cost, duration ×
+// dimension), not in time order: with time order, one long cluster near the end of a block
+// leaves the other threads idle at the block's end (measured: 0.93 and 0.96 of the ideal
+// 2-thread time for the weak-drive and thermal-beam examples from their item times, against
+// 0.999 and 1.0 longest first; docs/performance.md). Results are stored by item index, so the
+// order of work never changes the output.
 std::vector<ItemResult> run_block(const BlockContext& c, std::size_t b, const std::function<void(bool)>& on_item) {
   const std::size_t first = c.plan.block_begin[b], count = c.plan.block_begin[b + 1] - first;
-  return ensemble::map_ordered<ItemResult>(count, c.threads, [&](std::size_t i, trajectory::Workspace& ws) {
-    const Item& it = c.plan.items[first + i];
+  std::vector<std::size_t> order(count);
+  for (std::size_t i = 0; i < count; ++i) order[i] = i;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t x, std::size_t y) {
+    return c.plan.items[first + x].cost > c.plan.items[first + y].cost;
+  });
+  auto done = ensemble::map_ordered<ItemResult>(count, c.threads, [&](std::size_t k, trajectory::Workspace& ws) {
+    const Item& it = c.plan.items[first + order[k]];
     ItemResult r = run_item(c, it, ws);
     if (on_item) on_item(!it.empty_piece);
     return r;
   });
+  std::vector<ItemResult> out(count);
+  for (std::size_t k = 0; k < count; ++k) out[order[k]] = std::move(done[k]);
+  return out;
 }
 
 BlockStatus status_of(const std::exception_ptr& e) {
@@ -450,86 +504,87 @@ std::string message_of(const std::exception_ptr& e) {
   }
 }
 
-// Worker rank: computes its blocks (b ≡ rank mod size) in order, up to kBlocksAhead ahead of
-// rank 0's requests, and hands each to rank 0 when asked. Returns false when rank 0 told it to
-// stop; after an error it computes nothing more and rethrows the error once it has reported it.
-bool worker_loop(const BlockContext& c, RankInfo rk) {
-  struct Ready {
-    std::vector<char> bytes;
-    std::exception_ptr error;
-  };
-  std::deque<Ready> ready;
-  std::size_t next = std::size_t(rk.rank);
-  bool failed = false;
+// Worker rank: computes the blocks rank 0 orders, first in, first out, and sends each when done
+// (rank_link.h). Returns false when rank 0 stopped the run after an error. After an error of
+// its own it sends the error in place of the block and rethrows it (computing nothing more).
+bool worker_loop(const BlockContext& c) {
+  std::deque<std::uint64_t> todo;
+  std::optional<Order::Kind> stop;
   while (true) {
-    const bool more = next < c.plan.blocks() && !failed;
-    if (ready.empty() && !more) return true;
-    if (!ready.empty() && (!more || ready.size() >= kBlocksAhead || request_waiting())) {
-      if (!wait_for_request()) return false;
-      send_block(ready.front().bytes);
-      if (ready.front().error) std::rethrow_exception(ready.front().error);
-      ready.pop_front();
-      continue;
+    // Take every order that has arrived; wait for one when there is nothing to do.
+    while (!stop && (todo.empty() || order_waiting())) {
+      const Order o = receive_order();
+      if (o.kind == Order::Kind::kCompute) {
+        FLYBY_CHECK(o.block < c.plan.blocks(), "MPI rank 0 ordered a block that does not exist");
+        todo.push_back(o.block);
+      } else {
+        stop = o.kind;
+      }
     }
-    Ready r;
+    if (stop) {
+      send_block(encode_closing());
+      finish_sends();
+      return *stop == Order::Kind::kStop;
+    }
+    const std::uint64_t b = todo.front();
+    todo.pop_front();
     try {
       const double cpu0 = process_cpu_s();
-      auto results = run_block(c, next, {});
-      r.bytes = encode_results(results, process_cpu_s() - cpu0);
+      auto results = run_block(c, std::size_t(b), {});
+      send_block(encode_results(b, results, process_cpu_s() - cpu0));
     } catch (...) {
-      r.error = std::current_exception();
-      r.bytes = encode_error(status_of(r.error), message_of(r.error));
-      failed = true;
+      const std::exception_ptr error = std::current_exception();
+      send_block(encode_error(status_of(error), message_of(error)));
+      finish_sends();
+      throw;
     }
-    ready.push_back(std::move(r));
-    next += std::size_t(rk.size);
   }
 }
 
-// Rank 0: if it leaves the block loop early (its own error or one reported by a worker), tells
-// every worker that still has an unrequested block to stop, so no rank waits forever.
+// Rank 0: when it leaves the run (finished, or its own error or one a worker reported), sends
+// every worker still running a stop order and takes that worker's remaining messages off the
+// wire up to its closing message (a worker may be sending a large block; nothing may be left
+// unreceived), so no rank waits forever.
 class StopWorkersOnExit {
  public:
-  StopWorkersOnExit(RankInfo rk, std::size_t blocks) : rk_(rk), blocks_(blocks) {}
+  explicit StopWorkersOnExit(RankInfo rk) : rk_(rk), left_(std::size_t(rk.size), false) {}
   ~StopWorkersOnExit() {
-    if (done_) return;
-    // A worker asked for a block sends it; take it off the wire (a large message would block
-    // the worker forever). If it is an error report, that worker has left already.
-    if (outstanding_ >= 0) {
-      try {
-        const std::vector<char> bytes = receive_block(outstanding_);
-        if (bytes.empty() || bytes[0] != char(BlockStatus::kOk)) failed_rank_ = outstanding_;
-      } catch (...) {
-        failed_rank_ = outstanding_;
-      }
+    try {
+      stop_all(false);
+    } catch (...) {
+      // Already unwinding an error; the MPI runtime tears the job down if this fails.
     }
+  }
+  // The worker has sent an error (and left).
+  void left(int rank) { left_[std::size_t(rank)] = true; }
+  // Normal end: every block was received.
+  void finish() { stop_all(true); }
+
+ private:
+  void stop_all(bool success) {
+    if (done_) return;
+    done_ = true;
+    for (int w = 1; w < rk_.size; ++w)
+      if (!left_[std::size_t(w)])
+        send_order(w, {success ? Order::Kind::kStop : Order::Kind::kStopAfterError, 0});
     for (int w = 1; w < rk_.size; ++w) {
-      if (w == failed_rank_) continue;
-      // Lowest block of w not yet requested.
-      std::size_t b = next_;
-      while (b < blocks_ && b % std::size_t(rk_.size) != std::size_t(w)) ++b;
-      if (b >= blocks_) continue;
-      try {
-        send_request(w, false);
-      } catch (...) {
-        // Already unwinding an error; the MPI runtime tears the job down if this fails.
+      while (!left_[std::size_t(w)]) {
+        const std::vector<char> bytes = receive_block(w);
+        // The closing message, or an error report (that worker has left too).
+        if (bytes.empty() || bytes[0] != char(BlockStatus::kOk)) left_[std::size_t(w)] = true;
       }
     }
   }
-  void next_unrequested(std::size_t b) { next_ = b; }
-  void requested(int rank) { outstanding_ = rank; }
-  void received() { outstanding_ = -1; }
-  void failed_rank(int r) { failed_rank_ = r; }
-  void done() { done_ = true; }
-
- private:
   RankInfo rk_;
-  std::size_t blocks_;
-  std::size_t next_ = 0;
-  int failed_rank_ = -1;
-  int outstanding_ = -1;  // worker asked for a block that has not been received yet
+  std::vector<bool> left_;
   bool done_ = false;
 };
+
+// Rank 0: a worker whose message has arrived (never without workers: one process needs no MPI).
+std::optional<int> message_waiting_any(RankInfo rk) {
+  if (rk.size <= 1) return std::nullopt;
+  return message_waiting();
+}
 
 // A photon waiting for its turn: ordered by (time, item order, emission order).
 struct Pending {
@@ -569,8 +624,12 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     sum.frame_description = f.str();
   }
 
+  Lap lap;
+  auto& ph = sum.phase_wall_s;
   const ClusterModelBuilder builder = cluster_model_builder(s);
+  ph.setup_s += lap.lap();
   const Plan plan = make_plan(s, builder, D, sum, o.block_items, rk.size);
+  ph.plan_s += lap.lap();
 
   BlockContext ctx{s, builder, plan, {}, sum.seed, D, empty_resonator_rates_per_us(s), 0.0, o.threads};
   for (double r : ctx.rates) ctx.rate_total += r;
@@ -579,7 +638,9 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
   ctx.topt.fock_cutoff_setting = "resonator.fock_cutoff_count";
 
   if (rk.rank != 0) {
-    if (!worker_loop(ctx, rk)) {
+    const bool go_on = worker_loop(ctx);
+    ph.compute_s += lap.lap();
+    if (!go_on) {
       sum.ok = false;
       sum.message = "stopped by rank 0";
     }
@@ -587,7 +648,7 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     return sum;
   }
 
-  StopWorkersOnExit stop_guard(rk, plan.blocks());
+  StopWorkersOnExit stop_guard(rk);
 
   // Detector chain and record. One detector channel per [[channel]] in file order
   // (models/detectors/detector_config.h); channels that trigger a feedback rule are heralds.
@@ -605,6 +666,7 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
   header.duration_ps = end_ps;
   header.provenance = records::current_record_provenance("simulation", s.config.text, sum.seed);
   records::RecordWriter writer(o.output_path, header);
+  ph.setup_s += lap.lap();
 
   std::mutex progress_mutex;
   std::atomic<std::size_t> done{0};
@@ -618,46 +680,122 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
     if (trajectory) report(++done);
   };
 
-  // Rank 0's own blocks computed ahead while a worker's block is not there yet.
-  std::map<std::size_t, std::vector<ItemResult>> own_ahead;
-  std::size_t own_next = 0;  // next own block not computed yet
+  // Blocks are handed out dynamically (rank_link.h): up to kOrdersPerWorker to each worker,
+  // refilled as each returns one, and one at a time to a thread of rank 0 that computes it in
+  // the background (with the OpenMP threads), while this thread answers the workers and merges
+  // finished blocks through the detector chain into the record — so rank 0 stays responsive
+  // and its serial work overlaps the computation. Only the blocks of a window of
+  // kBlocksAhead × ranks blocks from the next one to merge are handed out (bounds the blocks
+  // held), costliest first by the estimated cost: a costly block near the end of the run would
+  // otherwise keep one rank busy while the others idle (docs/performance.md). The blocks are
+  // merged in time order whoever computed them, so the record does not depend on this.
+  // One process: in time order, the next block computed while the previous one is merged.
+  const std::size_t nblocks = plan.blocks();
+  const std::size_t window = rk.size > 1 ? kBlocksAhead * std::size_t(rk.size) : 2;
+  std::vector<double> block_cost(nblocks, 0.0);
+  for (std::size_t k = 0; k < nblocks; ++k)
+    for (std::size_t i = plan.block_begin[k]; i < plan.block_begin[k + 1]; ++i) block_cost[k] += plan.items[i].cost;
+  std::set<std::pair<double, std::size_t>> available;  // (−cost, block) in the window, not handed out
+  std::size_t window_end = 0;                          // blocks below it have entered the window
+  std::map<std::size_t, std::vector<ItemResult>> finished;  // computed, not merged yet
+  std::vector<std::deque<std::size_t>> orders(std::size_t(rk.size));  // per worker, in order given
   sum.rank_compute_cpu_s.assign(std::size_t(rk.size), 0.0);
-  auto compute_own = [&]() {
-    const double cpu0 = process_cpu_s();
-    own_ahead.emplace(own_next, run_block(ctx, own_next, on_item));
-    sum.rank_compute_cpu_s[0] += process_cpu_s() - cpu0;
-    own_next += std::size_t(rk.size);
+  // The next block to hand out while `merged` blocks are merged, if any.
+  auto hand_out = [&](std::size_t merged) -> std::optional<std::size_t> {
+    for (; window_end < std::min(nblocks, merged + window); ++window_end) available.insert({-block_cost[window_end], window_end});
+    if (available.empty()) return std::nullopt;
+    const std::size_t k = available.begin()->second;
+    available.erase(available.begin());
+    return k;
+  };
+  auto refill = [&](std::size_t merged) {
+    for (int w = 1; w < rk.size; ++w)
+      while (orders[std::size_t(w)].size() < kOrdersPerWorker) {
+        const auto k = hand_out(merged);
+        if (!k) return;
+        send_order(w, {Order::Kind::kCompute, *k});
+        orders[std::size_t(w)].push_back(*k);
+      }
+  };
+  auto receive_from = [&](int w) {  // the time since the last lap counts as waiting for ranks
+    const std::vector<char> bytes = receive_block(w);
+    auto& q = orders[std::size_t(w)];
+    FLYBY_CHECK(!q.empty(), "MPI rank sent a block it was not asked for");
+    const std::size_t blk = q.front();
+    q.pop_front();
+    double cpu_s = 0.0;
+    std::vector<ItemResult> res;
+    try {
+      res = decode_results(bytes, w, blk, cpu_s);
+    } catch (...) {
+      stop_guard.left(w);  // the worker reported an error and left
+      throw;
+    }
+    sum.rank_compute_cpu_s[std::size_t(w)] += cpu_s;
+    std::size_t n = 0;
+    for (std::size_t i = plan.block_begin[blk]; i < plan.block_begin[blk + 1]; ++i) n += !plan.items[i].empty_piece;
+    report(done += n);
+    finished.emplace(blk, std::move(res));
+  };
+
+  // Rank 0's own block in the background: its index, result, and CPU clocks at its start.
+  struct Own {
+    std::size_t block = 0;
+    std::future<std::vector<ItemResult>> result;
+    double process_cpu0 = 0.0, thread_cpu0 = 0.0, wall0 = 0.0;
+  };
+  std::optional<Own> own;
+  const auto t_start = std::chrono::steady_clock::now();
+  auto wall_now = [&] { return std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count(); };
+  auto collect_own = [&] {
+    auto res = own->result.get();  // rethrows an error of the block
+    // CPU of the computing threads: the process's minus this (main) thread's meanwhile.
+    sum.rank_compute_cpu_s[0] += (process_cpu_s() - own->process_cpu0) - (thread_cpu_s() - own->thread_cpu0);
+    ph.compute_s += wall_now() - own->wall0;
+    finished.emplace(own->block, std::move(res));
+    own.reset();
   };
 
   std::vector<Pending> pending;
   std::vector<detectors::Photon> ready;
   records::TagBlock tags;
   constexpr std::size_t kChunk = 1 << 16;
-  for (std::size_t b = 0; b < plan.blocks(); ++b) {
-    const int owner = int(b % std::size_t(rk.size));
-    stop_guard.next_unrequested(b + 1);
-    std::vector<ItemResult> results;
-    if (owner == 0) {
-      if (own_next == b) compute_own();
-      results = std::move(own_ahead.at(b));
-      own_ahead.erase(b);
-    } else {
-      send_request(owner, true);
-      stop_guard.requested(owner);
-      while (own_ahead.size() < kBlocksAhead && own_next < plan.blocks() && !block_waiting(owner)) compute_own();
-      const std::vector<char> bytes = receive_block(owner);
-      stop_guard.received();
-      stop_guard.failed_rank(owner);  // if decoding throws, the owner has reported an error and left
-      double cpu_s = 0.0;
-      results = decode_results(bytes, owner, cpu_s);
-      sum.rank_compute_cpu_s[std::size_t(owner)] += cpu_s;
-      stop_guard.failed_rank(-1);
-      std::size_t n = 0;
-      for (std::size_t i = plan.block_begin[b]; i < plan.block_begin[b + 1]; ++i) n += !plan.items[i].empty_piece;
-      report(done += n);
+  for (std::size_t b = 0; b < nblocks; ++b) {
+    // Until block b is here: hand out blocks, take what workers sent, keep rank 0's own
+    // computation going; wait (a short while, to notice workers' messages) when nothing moved.
+    lap.lap();
+    while (true) {
+      bool moved = false;
+      refill(b);
+      while (const auto w = message_waiting_any(rk)) {
+        receive_from(*w);
+        moved = true;
+      }
+      if (own && own->result.wait_for(std::chrono::seconds(0)) == std::future_status::ready) {
+        collect_own();
+        moved = true;
+      }
+      if (!own) {
+        if (const auto k = hand_out(b)) {
+          own = Own{*k, {}, process_cpu_s(), thread_cpu_s(), wall_now()};
+          own->result = std::async(std::launch::async, [&ctx, &on_item, k = *k] { return run_block(ctx, k, on_item); });
+          moved = true;
+        }
+      }
+      if (finished.count(b)) break;
+      if (!moved) {
+        FLYBY_CHECK(own || rk.size > 1, "simulate: block not computed and nothing running");
+        if (rk.size == 1) own->result.wait();  // nothing else can arrive
+        else if (own) own->result.wait_for(std::chrono::microseconds(500));
+        else receive_from(wait_for_message());  // block b is out at a worker
+      }
     }
+    ph.wait_s += lap.lap();
+    std::vector<ItemResult> results = std::move(finished.at(b));
+    finished.erase(b);
 
     // Statistics in item order (the order a one-process run uses).
+    lap.lap();
     const std::size_t old = pending.size();
     for (std::size_t i = 0; i < results.size(); ++i) {
       const Item& it = plan.items[plan.block_begin[b] + i];
@@ -690,19 +828,25 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
                                                      : std::numeric_limits<std::int64_t>::max();
     const auto cut = std::lower_bound(pending.begin(), pending.end(), bound,
                                       [](const Pending& p, std::int64_t t) { return p.time_ps < t; });
+    ph.merge_s += lap.lap();
     for (auto p = pending.begin(); p != cut;) {
       ready.clear();
       for (; p != cut && ready.size() < kChunk; ++p) ready.push_back({p->time_ps, p->channel});
       chain.push(std::span<const detectors::Photon>(ready), tags);
+      ph.detect_s += lap.lap();
       writer.append(tags);
       tags.clear();
+      ph.write_s += lap.lap();
     }
     pending.erase(pending.begin(), cut);
+    ph.merge_s += lap.lap();
   }
   chain.finish(tags);
+  ph.detect_s += lap.lap();
   writer.append(tags);
   writer.commit();
-  stop_guard.done();
+  ph.write_s += lap.lap();
+  stop_guard.finish();
 
   if (sum.max_excitation && std::max(sum.excitation_leak_max, sum.attach_dropped_max) > kLeakWarningFraction)
     sum.warnings.push_back("excitation truncation: estimated leaked norm " +
@@ -760,6 +904,13 @@ std::string Summary::full_report() const {
     if (most > 0) os << " (balance " << total / (double(ranks) * most) << ")";
     os << "\n";
   }
+  {
+    const auto& p = phase_wall_s;
+    const double other = wall_time_s - (p.setup_s + p.plan_s + p.wait_s + p.merge_s + p.detect_s + p.write_s);
+    os << "  wall s per phase: set-up " << p.setup_s << ", planning " << p.plan_s << ", waiting for blocks "
+       << p.wait_s << ", merge " << p.merge_s << ", detector chain " << p.detect_s << ", record " << p.write_s
+       << ", other " << std::max(0.0, other) << "; own blocks computing (overlaps the rest) " << p.compute_s << "\n";
+  }
   for (const auto& w : warnings) os << "  warning: " << w << "\n";
   return os.str();
 }
@@ -793,6 +944,10 @@ std::string Summary::to_json() const {
   j["ranks_count"] = ranks;
   j["blocks_count"] = blocks;
   j["rank_compute_cpu_s"] = rank_compute_cpu_s;
+  j["phase_wall_s"] = {{"setup_s", phase_wall_s.setup_s},   {"plan_s", phase_wall_s.plan_s},
+                       {"compute_s", phase_wall_s.compute_s}, {"wait_s", phase_wall_s.wait_s},
+                       {"merge_s", phase_wall_s.merge_s},   {"detect_s", phase_wall_s.detect_s},
+                       {"write_s", phase_wall_s.write_s}};
   j["warnings"] = warnings;
   auto& ch = j["channels"] = nlohmann::json::array();
   for (const auto& c : channels)

@@ -78,6 +78,19 @@ struct Summary {
   // CPU seconds (all threads) each rank spent computing its blocks (rank 0's summary only):
   // Σ / (ranks · max) is the load balance, independent of other load on the machine.
   std::vector<double> rank_compute_cpu_s;
+  // Wall seconds per phase of the run, as seen by rank 0's main thread (docs/performance.md).
+  // Set-up, planning, merge, detector chain and record are serial; the main thread waits while
+  // the blocks are computed (by rank 0's computing thread with its OpenMP threads, and by the
+  // other ranks); compute_s overlaps the other phases.
+  struct PhaseTimes {
+    double setup_s = 0.0;    // per-scenario matrices, detector chain and record set-up
+    double plan_s = 0.0;     // arrivals, clusters, work items and blocks (on every rank)
+    double wait_s = 0.0;     // waiting for the next block in time order (and receiving it)
+    double merge_s = 0.0;    // per-item statistics and the time-ordered photon merge
+    double detect_s = 0.0;   // detector chain
+    double write_s = 0.0;    // record writer, incl. the final commit
+    double compute_s = 0.0;  // this process's own blocks being computed (in the background)
+  } phase_wall_s;
 
   std::string brief_report() const;
   std::string full_report() const;

@@ -4,7 +4,9 @@
 #include <catch2/catch.hpp>
 
 #include <filesystem>
+#include <cmath>
 #include <fstream>
+#include <nlohmann/json.hpp>
 
 #include "engine/records/record_reader.h"
 #include "models/config/scenario_config.h"
@@ -57,4 +59,35 @@ TEST_CASE("simulate: time blocks of any size give the record of one block", "[si
       CHECK(sum.channels[c].recorded == ref_sum.channels[c].recorded);
     }
   }
+}
+
+TEST_CASE("simulate: the phase times of the summary add up to at most the wall time", "[simulate][blocks]") {
+  // The serial phases (set-up, planning, waiting, merge, detector chain, record) are timed one
+  // after the other on rank 0's main thread, so their sum cannot exceed the run's wall time; the
+  // blocks are computed on another thread, for part of the run. (Timer values are not compared
+  // with any expected duration: only their bookkeeping is checked.)
+  const auto seed = flyby::test::seed("simulate phase times");
+  ScratchDir d("sim-phases");
+  std::ofstream((d / "cfg.toml").string()) << flyby::test::block_driver_config(seed);
+  const auto scenario = flyby::config::check_scenario(flyby::config::load_config_file((d / "cfg.toml").string()));
+  flyby::simulation::Options o;
+  o.output_path = (d / "run.h5").string();
+  o.threads = 2;
+  o.block_items = 3;
+  const auto sum = flyby::simulation::simulate(scenario, o);
+  REQUIRE(sum.ok);
+  REQUIRE(sum.blocks > 2);
+  const auto& p = sum.phase_wall_s;
+  for (double v : {p.setup_s, p.plan_s, p.wait_s, p.merge_s, p.detect_s, p.write_s, p.compute_s}) {
+    REQUIRE(std::isfinite(v));
+    CHECK(v >= 0.0);
+  }
+  const double serial = p.setup_s + p.plan_s + p.wait_s + p.merge_s + p.detect_s + p.write_s;
+  CHECK(serial <= sum.wall_time_s);
+  CHECK(p.compute_s <= sum.wall_time_s);
+  CHECK(p.compute_s > 0.0);
+  const auto j = nlohmann::json::parse(sum.to_json());
+  for (const char* k : {"setup_s", "plan_s", "wait_s", "merge_s", "detect_s", "write_s", "compute_s"})
+    CHECK(j["phase_wall_s"][k].get<double>() >= 0.0);
+  CHECK(sum.full_report().find("wall s per phase") != std::string::npos);
 }
