@@ -43,7 +43,18 @@ struct Stretch {
     double norm = 0;         // ‖Σ (constant·control)_k H_k‖_F, for the first step size
   };
   std::vector<TimedGroup> timed;
-  bool timed_any() const { return !timed.empty(); }
+  // Channels with a time-dependent part (channels::Channel::timed): C(t) = channel_ops[k] +
+  // Σ_g φ_g(t) M_g. Their −(i/2) C†C is applied in the right-hand side as C†(Cψ), so no product
+  // of two coefficients is formed; their constant part is not in heff_const / decay.
+  struct TimedChannel {
+    std::size_t k = 0;  // index into channel_ops / channel_ids
+    std::vector<std::pair<std::size_t, bool>> fn;  // (index into fns, conjugate) per part
+    std::vector<SparseMatrix> parts, parts_adj;    // M_g and M_g†
+    SparseMatrix constant_adj;                     // channel_ops[k]†
+    double norm = 0;                               // ‖C(t0)‖_F², for the first step size
+  };
+  std::vector<TimedChannel> timed_channels;
+  bool timed_any() const { return !timed.empty() || !timed_channels.empty(); }
   SparseMatrix decay;  // Σ C†C: −d‖ψ‖²/dt = ⟨ψ|Σ C†C|ψ⟩ (the exact path's Newton derivative)
   std::vector<int> channel_ids;
   std::vector<SparseMatrix> channel_ops;
@@ -207,8 +218,56 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
                        " us (||H - H^dagger|| = " + std::to_string(diff) + ")");
   }
   for (std::size_t k = 0; k < m.channels.size(); ++k) {
-    if (!m.channels[k].op.active_in(s->layout)) continue;
-    SparseMatrix c = operators::to_sparse(m.channels[k].op, s->layout);
+    const auto& ch = m.channels[k];
+    if (ch.time_dependent()) {
+      // Constant (incl. control-only) terms go into the constant part; each distinct time function
+      // gives one part M_g.
+      SparseMatrix c0 = ch.op.active_in(s->layout) ? operators::to_sparse(ch.op, s->layout) : SparseMatrix(n, n);
+      Stretch::TimedChannel tc;
+      bool active = ch.op.active_in(s->layout);
+      for (const auto& term : ch.timed.terms()) {
+        if (!term.op.active_in(s->layout)) continue;
+        active = true;
+        SparseMatrix op = operators::to_sparse(term.op, s->layout);
+        const auto& c = term.coefficient;
+        if (!c.time_dependent()) {
+          c0 += c.constant_value(controls) * op;
+          continue;
+        }
+        const operators::TimeFunction* f = c.time_fn.get();
+        std::size_t fi = std::size_t(std::find(s->fns.begin(), s->fns.end(), f) - s->fns.begin());
+        if (fi == s->fns.size()) s->fns.push_back(f);
+        std::size_t g = 0;
+        while (g < tc.fn.size() && tc.fn[g] != std::make_pair(fi, c.conjugate)) ++g;
+        if (g == tc.fn.size()) {
+          tc.fn.emplace_back(fi, c.conjugate);
+          tc.parts.push_back(SparseMatrix(n, n));
+        }
+        tc.parts[g] += c.control_factor(controls) * op;
+      }
+      if (!active) continue;
+      c0.prune(Complex(0.0));
+      if (tc.parts.empty()) {
+        decay += SparseMatrix(SparseMatrix(c0.adjoint()) * c0);
+      } else {
+        tc.k = s->channel_ops.size();
+        tc.constant_adj = c0.adjoint();
+        SparseMatrix at0 = c0;
+        for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+          tc.parts[g].prune(Complex(0.0));
+          tc.parts_adj.push_back(tc.parts[g].adjoint());
+          const Complex f0 = (*s->fns[tc.fn[g].first])(t_us);
+          at0 += (tc.fn[g].second ? std::conj(f0) : f0) * tc.parts[g];
+        }
+        tc.norm = at0.squaredNorm();
+        s->timed_channels.push_back(std::move(tc));
+      }
+      s->channel_ids.push_back(int(k));
+      s->channel_ops.push_back(std::move(c0));
+      continue;
+    }
+    if (!ch.op.active_in(s->layout)) continue;
+    SparseMatrix c = operators::to_sparse(ch.op, s->layout);
     decay += SparseMatrix(SparseMatrix(c.adjoint()) * c);
     s->channel_ids.push_back(int(k));
     s->channel_ops.push_back(std::move(c));
@@ -365,12 +424,26 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
   if (t1 <= t0) return leg;
   const long n = psi.size();
   std::vector<Complex> fv(s.fns.size());
+  StateVec cy(s.timed_channels.empty() ? 0 : 2 * n);  // C(t)ψ of a time-dependent channel
   auto system = [&](const StateVec& x, StateVec& dxdt, double t) {
     csr_apply(s.rhs_const, x.data(), dxdt.data(), false);
     for (std::size_t k = 0; k < fv.size(); ++k) fv[k] = (*s.fns[k])(t);
     for (const auto& g : s.timed) {
       const Complex phi = g.conjugate ? std::conj(fv[g.fn]) : fv[g.fn];
       if (phi != Complex(0.0)) csr_apply(g.rhs, x.data(), dxdt.data(), true, phi);
+    }
+    // −i·(−(i/2) C†C)ψ = −(1/2) C†(Cψ) for each time-dependent channel.
+    for (const auto& tc : s.timed_channels) {
+      csr_apply(s.channel_ops[tc.k], x.data(), cy.data(), false);
+      for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+        const Complex f = fv[tc.fn[g].first];
+        csr_apply(tc.parts[g], x.data(), cy.data(), true, tc.fn[g].second ? std::conj(f) : f);
+      }
+      csr_apply(tc.constant_adj, cy.data(), dxdt.data(), true, -0.5);
+      for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+        const Complex f = fv[tc.fn[g].first];
+        csr_apply(tc.parts_adj[g], cy.data(), dxdt.data(), true, -0.5 * (tc.fn[g].second ? f : std::conj(f)));
+      }
     }
   };
   StateVec x(2 * n);
@@ -380,6 +453,7 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
                                            odeint::runge_kutta_dopri5<StateVec>());
   double bound = s.heff_const.norm();
   for (const auto& g : s.timed) bound += std::abs((*s.fns[g.fn])(t0)) * g.norm;
+  for (const auto& tc : s.timed_channels) bound += 0.5 * tc.norm;
   // Start from the step the controller reached before (a jump or an event rarely changes the
   // fastest frequency much; a too long step is simply rejected and shortened), else from a
   // conservative 1 % of the inverse norm of H_eff.
@@ -588,6 +662,13 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
       for (std::size_t k = 0; k < w.size(); ++k) {
         cpsi[k].resize(psi.size());
         cpsi[k].noalias() = s.channel_ops[k] * psi;
+      }
+      for (const auto& tc : s.timed_channels)
+        for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+          const Complex f = (*s.fns[tc.fn[g].first])(t);
+          cpsi[tc.k] += (tc.fn[g].second ? std::conj(f) : f) * (tc.parts[g] * psi);
+        }
+      for (std::size_t k = 0; k < w.size(); ++k) {
         w[k] = cpsi[k].squaredNorm();
         total += w[k];
       }
