@@ -267,7 +267,9 @@ ClusterPlan plan(const config::CheckedScenario& s, const AtomMatrices& A, int k)
     e.validity_ratio = validity(s, A, k).ratio();
     return e;
   };
-  if (k > 1 && choice != Choice::kAuto) {
+  // A forced method applies to joint clusters; the elimination also to single atoms (it removes
+  // the modes from the basis whatever the atom number).
+  if ((k > 1 || choice == Choice::kEliminated) && choice != Choice::kAuto) {
     switch (choice) {
       case Choice::kExact:
         p.dimension = cluster_dimension(s, A, k, std::nullopt);

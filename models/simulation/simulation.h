@@ -179,7 +179,8 @@ struct ClusterPlan {
 // basis is too large; when even that exceeds the cap, the eliminated modes if the atoms-only
 // basis fits and elimination_validity(…).ratio() ≤ kEliminationMaxRatio; independent atoms
 // otherwise. run.cluster_method = "exact" / "truncated" / "eliminated" / "independent" forces a
-// method for clusters of ≥ 2 atoms that share a resonator (uncoupled atoms stay uncoupled).
+// method for clusters of ≥ 2 atoms that share a resonator ("eliminated" also for single atoms;
+// uncoupled atoms stay uncoupled).
 ClusterPlan plan_cluster(const config::CheckedScenario& scenario, int atoms_together);
 
 // build_cluster_model with the per-scenario atom matrices computed once (for the run driver).

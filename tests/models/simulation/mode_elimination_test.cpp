@@ -268,6 +268,7 @@ TEST_CASE("eliminated modes: planner choice, validity ratio and the run summary"
   p = plan_cluster(scenario(st), 2);
   CHECK(p.method == ClusterMethod::kEliminated);
   CHECK(p.basis.eliminate_modes);
+  CHECK(plan_cluster(scenario(st), 1).method == ClusterMethod::kEliminated);  // single atoms too
   st.run_extra = "cluster_method = \"truncated\"\n";
   CHECK(plan_cluster(scenario(st), 2).method == ClusterMethod::kTruncated);
   st.run_extra = "cluster_method = \"independent\"\n";
