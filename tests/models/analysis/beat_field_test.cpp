@@ -6,6 +6,7 @@
 #include "engine/common/errors.h"
 #include "models/analysis/beat_field.h"
 #include "models/config/scenario_config.h"
+#include "tests/support/scenario_text.h"
 
 using namespace flyby::analysis;
 
@@ -31,31 +32,12 @@ TEST_CASE("field from the beat frequency: f = |Δm| |g_F| μB B / h", "[beat_fie
 namespace {
 
 flyby::config::CheckedScenario scenario(const std::string& detector) {
-  const std::string text = R"(
-[atom]
-species = "Rb87"
-ground_F = 1
-excited_F = 0
-[field]
-B_G = [2.0, 0, 0]
-[[drive]]
-name = "probe"
-kind = "side"
-direction_dir = [0, 0, 1]
-polarization_dir = [1, 1, 0]
-waist_um = 50.0
-rabi_MHz = 1.0
-[[channel]]
-name = "det"
-source = "free_space"
-)" + detector + R"(
-solid_angle_sr = 1.0
-[source]
-kind = "stationary"
-positions_um = [[0, 0, 0]]
-[run]
-duration_s = 0.001
-)";
+  flyby::test::BeatScenario o;
+  o.field_G = 2.0;
+  o.duration_s = 0.001;
+  o.solid_angle_sr = 1.0;
+  o.detector = detector + "\n";
+  const std::string text = flyby::test::beat_scenario_text(o);
   return flyby::config::check_scenario(flyby::config::parse_config(text, "test"));
 }
 

@@ -9,7 +9,6 @@
 // monochromatic beam of a two-level model atom (custom F = 0 → F′ = 1, π drive) crossing a weak
 // Gaussian side beam, free-space detection, for atom number and transit time.
 #include <catch2/catch.hpp>
-#include <gsl/gsl_cdf.h>
 
 #include <cmath>
 #include <filesystem>
@@ -25,9 +24,12 @@
 #include "models/analysis/scenario_plan.h"
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
+#include "tests/support/coverage.h"
+#include "tests/support/scenario_text.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
+using flyby::test::binomial_region;
 using flyby::test::ScratchDir;
 
 namespace {
@@ -37,41 +39,16 @@ namespace {
 constexpr double kMuBOverH_MHz_per_G = 1.39962449361;
 constexpr double kGF_Rb87_F1 = -0.5018267;
 
-// Stationary 87Rb atom, F = 1 → F′ = 0, B along x, drive along z polarized (x̂ + ŷ)/√2 (π and σ
-// with respect to B, so no dark state survives the precession), detector along B behind a ŷ
-// polarizer: it sees σ+ and σ− only, so a click leaves a superposition of m = ±1 (Δm = 2) and the
-// next click beats at 2 |g_F| μB B / h. The drive is weak (Ω/2π = 1 MHz) against the Larmor
-// frequency (4.2 MHz at 3 G) to keep its light shift of the beat small.
+// Heralded Δm = 2 beats of a stationary 87Rb atom (tests/support/scenario_text.h), B = 3 G. The
+// drive is weak (Ω/2π = 1 MHz) against the Larmor frequency (4.2 MHz at 3 G) to keep its light
+// shift of the beat small.
 constexpr double kBeatField_G = 3.0;
 std::string beat_config(std::uint64_t seed, double duration_s) {
-  return R"(
-[atom]
-species = "Rb87"
-ground_F = 1
-excited_F = 0
-[field]
-B_G = [3.0, 0, 0]
-[[drive]]
-name = "probe"
-kind = "side"
-direction_dir = [0, 0, 1]
-polarization = "linear"
-polarization_dir = [1, 1, 0]
-waist_um = 50.0
-rabi_MHz = 1.0
-[[channel]]
-name = "det"
-source = "free_space"
-direction_dir = [1, 0, 0]
-polarization = "linear"
-polarization_dir = [0, 1, 0]
-solid_angle_sr = 8.0
-efficiency_fraction = 1.0
-[source]
-kind = "stationary"
-positions_um = [[0, 0, 0]]
-[run]
-duration_s = )" + std::to_string(duration_s) + "\nseed_id = " + std::to_string(seed) + "\n";
+  flyby::test::BeatScenario o;
+  o.seed = seed;
+  o.duration_s = duration_s;
+  o.field_G = kBeatField_G;
+  return flyby::test::beat_scenario_text(o);
 }
 
 flyby::analysis::RecordAnalysisOptions beat_options() {
@@ -84,54 +61,21 @@ flyby::analysis::RecordAnalysisOptions beat_options() {
   return o;
 }
 
-// Two-level model atom (custom F = 0 → F′ = 1 driven on π) in a monochromatic beam along x at
-// speed v, uniform over a slit of width W in y (W ≫ w), crossing a side beam along z of 1/e²
-// radius w with weak peak saturation s0 = 2Ω²/Γ².
-constexpr double kBeamSpeed_m_per_s = 2.0, kBeamWaist_um = 20.0, kSlit_um = 200.0, kFlux_per_s = 477000.0;
-constexpr double kGamma_MHz = 6.0, kRabi_MHz = 0.6;
+// Two-level model atoms in a monochromatic beam along x at speed v, uniform over a slit of width W
+// in y (W ≫ w), crossing a side beam along z of 1/e² radius w with weak peak saturation
+// s0 = 2Ω²/Γ² (tests/support/scenario_text.h).
+// The expectations below read the scenario's parameters from its defaults.
+const flyby::test::BeamScenario kBeam;
+const double kBeamSpeed_m_per_s = kBeam.speed_m_per_s, kBeamWaist_um = kBeam.waist_um, kSlit_um = *kBeam.slit_width_um,
+             kFlux_per_s = kBeam.flux_per_s, kGamma_MHz = kBeam.gamma_MHz, kRabi_MHz = kBeam.rabi_MHz;
 std::string beam_config(std::uint64_t seed, double duration_s) {
-  return R"(
-[atom]
-species = "custom"
-ground_F = 0
-excited_F = 1
-gamma_MHz = 6.0
-wavelength_nm = 780.0
-mass_u = 87.0
-ground_gF = 0.0
-excited_gF = 0.0
-[field]
-axis_when_zero_dir = [0, 1, 0]
-[[drive]]
-name = "probe"
-kind = "side"
-direction_dir = [0, 0, 1]
-polarization = "linear"
-polarization_dir = [0, 1, 0]
-waist_um = 20.0
-rabi_MHz = 0.6
-[[channel]]
-name = "det"
-source = "free_space"
-direction_dir = [1, 0, 0]
-polarization = "unpolarized"
-solid_angle_sr = 4.0
-efficiency_fraction = 1.0
-[source]
-kind = "beam"
-speed_distribution = "monochromatic"
-speed_m_per_s = 2.0
-transverse_profile = "slit"
-slit_width_um = 200
-axial_extent_um = 100
-flux_per_s = 477000
-[run]
-duration_s = )" + std::to_string(duration_s) + "\nseed_id = " + std::to_string(seed) + R"(
-max_cluster_dimension_count = 8
-relative_tolerance_fraction = 1e-4
-)";
+  flyby::test::BeamScenario o;
+  o.seed = seed;
+  o.duration_s = duration_s;
   // max_cluster_dimension_count = 8: overlapping atoms run as independent single-atom
   // sub-clusters, exact here (free space, each atom its own channels: no collective effects).
+  o.run_lines = "max_cluster_dimension_count = 8\nrelative_tolerance_fraction = 1e-4\n";
+  return flyby::test::beam_scenario_text(o);
 }
 
 flyby::analysis::RecordAnalysisOptions beam_options() {
@@ -145,25 +89,16 @@ flyby::analysis::RecordAnalysisOptions beam_options() {
 }
 
 std::string simulate(const ScratchDir& d, const std::string& name, const std::string& text) {
-  const auto s = flyby::config::check_scenario(flyby::config::parse_config(text, name));
-  flyby::simulation::Options o;
-  o.output_path = (d / (name + ".h5")).string();
-  o.threads = 1;
-  const auto sum = flyby::simulation::simulate(s, o);
-  REQUIRE(sum.ok);
-  return o.output_path;
+  const auto path = (d / (name + ".h5")).string();
+  REQUIRE(flyby::test::simulate_text(text, name, path).ok);
+  return path;
 }
 
-// Two-sided binomial acceptance region for k successes of n at probability p, each tail ≤ alpha.
-std::pair<int, int> binomial_region(int n, double p, double alpha) {
-  int lo = 0, hi = n;
-  while (lo < n && gsl_cdf_binomial_P(static_cast<unsigned>(lo), p, static_cast<unsigned>(n)) < alpha) ++lo;
-  while (hi > 0 && gsl_cdf_binomial_Q(static_cast<unsigned>(hi - 1), p, static_cast<unsigned>(n)) < alpha) --hi;
-  return {lo, hi};
-}
-
-// Standard normal ±1σ coverage: erf(1/√2) = 0.682689 (any statistics handbook [memory]).
-const double kOneSigmaCoverage = std::erf(1 / std::sqrt(2.0));
+// ±1σ coverage of the reported errors: they are jackknife errors over B time blocks, so the pull
+// follows Student's t with B − 1 degrees of freedom (0.657 for B = 10; the normal value
+// erf(1/√2) = 0.683 only for B → ∞).
+const double kOneSigmaCoverage =
+    flyby::test::one_sigma_coverage_t(flyby::analysis::RecordAnalysisOptions{}.jackknife_blocks - 1);
 
 }  // namespace
 

@@ -17,6 +17,7 @@
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
 #include "tests/engine/engine_test_models.h"
+#include "tests/support/scenario_text.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
@@ -42,47 +43,23 @@ double overlap(double tau) {
   return s * h;
 }
 
+// A line of two-level atoms (σ = 10 nm across) in a 1 G field along the drive polarization, so
+// the drive is π (tests/support/scenario_text.h).
 std::string config(std::uint64_t seed, double flux_per_s, double duration_s) {
-  return R"(
-[atom]
-species = "custom"
-ground_F = 0
-excited_F = 1
-gamma_MHz = )" + std::to_string(kGammaMHz) + R"(
-wavelength_nm = 780.0
-ground_gF = 0.0
-excited_gF = 0.5
-[field]
-B_G = [0, 1.0, 0]
-[[drive]]
-name = "excite"
-kind = "side"
-direction_dir = [0, 0, 1]
-polarization = "linear"
-polarization_dir = [0, 1, 0]
-waist_um = )" + std::to_string(kWaistUm) + R"(
-rabi_MHz = )" + std::to_string(kRabiMHz) + R"(
-[[channel]]
-name = "D"
-source = "free_space"
-direction_dir = [1, 0, 0]
-polarization = "unpolarized"
-solid_angle_sr = 4.0
-efficiency_fraction = 1.0
-[source]
-kind = "beam"
-speed_distribution = "monochromatic"
-speed_m_per_s = )" + std::to_string(kSpeed) + R"(
-transverse_profile = "gaussian"
-transverse_sigma_um = 0.01
-axial_extent_um = 0
-flux_per_s = )" + std::to_string(flux_per_s) + R"(
-[[population]]
-ground_F = 0
-m_F = 0
-probability_fraction = 1.0
-[run]
-duration_s = )" + std::to_string(duration_s) + "\nseed_id = " + std::to_string(seed) + "\n";
+  flyby::test::BeamScenario o;
+  o.seed = seed;
+  o.duration_s = duration_s;
+  o.flux_per_s = flux_per_s;
+  o.speed_m_per_s = kSpeed;
+  o.waist_um = kWaistUm;
+  o.rabi_MHz = kRabiMHz;
+  o.gamma_MHz = kGammaMHz;
+  o.excited_gF = 0.5;
+  o.field_G = 1.0;
+  o.slit_width_um.reset();
+  o.transverse_sigma_um = 0.01;
+  o.axial_extent_um = 0;
+  return flyby::test::beam_scenario_text(o);
 }
 
 }  // namespace
@@ -101,17 +78,13 @@ TEST_CASE("Poisson beams: g2(0) and the transit envelope follow the multi-atom f
     const double duration_s = n_eff < 0.5 ? flyby::test::test_scale() * 0.1 : n_eff < 2 ? flyby::test::test_scale() * 0.01 : 0.003;
     INFO("N_eff " << n_eff << ", flux " << rate_per_us * 1e6 << " /s, duration " << duration_s << " s");
     ScratchDir d("poisson-beam");
-    const std::string path = (d / "c.toml").string();
-    std::ofstream(path) << config(flyby::test::seed("poisson beam"), rate_per_us * 1e6, duration_s);
-    const auto s = flyby::config::check_scenario(flyby::config::load_config_file(path));
-    flyby::simulation::Options o;
-    o.output_path = (d / "run.h5").string();
-    const auto sum = flyby::simulation::simulate(s, o);
+    const std::string path = (d / "run.h5").string();
+    const auto sum = flyby::test::simulate_text(config(flyby::test::seed("poisson beam"), rate_per_us * 1e6, duration_s), "poisson beam", path, 0);
     INFO(sum.full_report());
     REQUIRE(sum.ok);
     CHECK(sum.exact_clusters + sum.uncoupled_clusters == sum.clusters);
     CHECK(sum.fallback_clusters == 0u);
-    const auto rec = flyby::records::read_record(o.output_path);
+    const auto rec = flyby::records::read_record(path);
     const auto& t = rec.tags.time_ps;
     const double D_us = duration_s * 1e6;
     REQUIRE(t.size() > 100);

@@ -9,6 +9,7 @@
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
 #include "tests/support/run_cli.h"
+#include "tests/support/scenario_text.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
@@ -238,42 +239,19 @@ TEST_CASE("simulate error cases: one line, non-zero exit, no output", "[simulate
 
 namespace {
 
-// A stationary 87Rb atom, F = 1 → F′ = 0, B along lab x, driven along z with linear polarization
-// (x̂ + ŷ)/√2 (π and σ± with respect to B, so no dark state survives the Larmor precession). A
-// detector along B behind a y polarizer sees only σ± light; its click leaves the atom in the
-// ground state ∝ ŷ, a superposition of m = ±1, which precesses about B: the rate of the next
-// photon oscillates at the m = ±1 beat frequency.
+// Heralded Δm = 2 beats of a stationary 87Rb atom, F = 1 → F′ = 0, B along lab x
+// (tests/support/scenario_text.h): the rate of the photon after a click oscillates at the m = ±1
+// beat frequency.
 std::string beat_config(std::uint64_t seed, double field_G, double duration_s, double rabi_MHz,
                         const std::string& extra) {
-  return R"(
-[atom]
-species = "Rb87"
-ground_F = 1
-excited_F = 0
-[field]
-B_G = [)" + std::to_string(field_G) + R"(, 0, 0]
-[[drive]]
-name = "probe"
-kind = "side"
-direction_dir = [0, 0, 1]
-polarization = "linear"
-polarization_dir = [1, 1, 0]
-waist_um = 50.0
-rabi_MHz = )" + std::to_string(rabi_MHz) + R"(
-[[channel]]
-name = "det"
-source = "free_space"
-direction_dir = [1, 0, 0]
-polarization = "linear"
-polarization_dir = [0, 1, 0]
-solid_angle_sr = 2.0
-efficiency_fraction = 1.0
-[source]
-kind = "stationary"
-positions_um = [[0, 0, 0]]
-)" + extra + R"(
-[run]
-duration_s = )" + std::to_string(duration_s) + "\nseed_id = " + std::to_string(seed) + "\n";
+  flyby::test::BeatScenario o;
+  o.seed = seed;
+  o.field_G = field_G;
+  o.duration_s = duration_s;
+  o.rabi_MHz = rabi_MHz;
+  o.solid_angle_sr = 2.0;
+  o.extra_tables = extra;
+  return flyby::test::beat_scenario_text(o);
 }
 
 // Delays in [min_us, max_us) from every tag to the later tags, µs.

@@ -11,6 +11,7 @@
 #include <string>
 
 #include "tests/support/run_cli.h"
+#include "tests/support/scenario_text.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
@@ -19,35 +20,12 @@ using flyby::test::ScratchDir;
 
 namespace {
 
-// A stationary 87Rb atom with heralded Δm = 2 beats (see tests/models/analysis).
+// A stationary 87Rb atom with heralded Δm = 2 beats (tests/support/scenario_text.h).
 std::string config(std::uint64_t seed) {
-  return R"(
-[atom]
-species = "Rb87"
-ground_F = 1
-excited_F = 0
-[field]
-B_G = [3.0, 0, 0]
-[[drive]]
-name = "probe"
-kind = "side"
-direction_dir = [0, 0, 1]
-polarization_dir = [1, 1, 0]
-waist_um = 50.0
-rabi_MHz = 1.0
-[[channel]]
-name = "det"
-source = "free_space"
-direction_dir = [1, 0, 0]
-polarization = "linear"
-polarization_dir = [0, 1, 0]
-solid_angle_sr = 8.0
-[source]
-kind = "stationary"
-positions_um = [[0, 0, 0]]
-[run]
-duration_s = 0.4
-seed_id = )" + std::to_string(seed) + "\n";
+  flyby::test::BeatScenario o;
+  o.seed = seed;
+  o.duration_s = 0.4;
+  return flyby::test::beat_scenario_text(o);
 }
 
 }  // namespace
