@@ -27,6 +27,12 @@ bool subset_of(const std::vector<space::SubsystemId>& s, const std::vector<space
 
 }  // namespace
 
+operators::Operator Channel::at(double t_us, const std::vector<operators::Complex>& controls) const {
+  operators::Operator c = op;
+  for (const auto& term : timed.terms()) c += term.coefficient.value(t_us, controls) * term.op;
+  return c;
+}
+
 void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
                                 const std::vector<Channel>& channels,
                                 const operators::Operator& physical_decay,
@@ -37,6 +43,10 @@ void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
   std::iota(parent.begin(), parent.end(), 0);
   std::vector<Operator> ctc;
   for (const auto& c : channels) {
+    if (c.time_dependent()) {  // not checked here (channel.h)
+      ctc.emplace_back();
+      continue;
+    }
     for (auto id : c.op.support())
       if (id < 0 || id >= n) throw InputError("channel '" + c.label + "' acts on an unknown subsystem");
     ctc.push_back(c.op.adjoint() * c.op);
@@ -58,7 +68,7 @@ void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
     space::Layout layout(&subsystems, group);
     Operator sum_ctc, decay;
     for (std::size_t k = 0; k < ctc.size(); ++k)
-      if (!channels[k].op.support().empty() && subset_of(channels[k].op.support(), group)) sum_ctc += ctc[k];
+      if (!channels[k].time_dependent() && !channels[k].op.support().empty() && subset_of(channels[k].op.support(), group)) sum_ctc += ctc[k];
     for (const auto& d : decay_terms)
       if (!d.support().empty() && subset_of(d.support(), group)) decay += d;
     if (sum_ctc.empty() && decay.empty()) continue;

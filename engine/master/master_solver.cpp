@@ -115,7 +115,7 @@ SparseMatrix MasterSolver::hamiltonian(double t_us) const {
 std::vector<SparseMatrix> MasterSolver::collapse_operators() const {
   auto layout = initial_layout();
   std::vector<SparseMatrix> c;
-  for (const auto& ch : model_.channels) c.push_back(operators::to_sparse(ch.op, layout));
+  for (const auto& ch : model_.channels) c.push_back(operators::to_sparse(ch.at(model_.start_us, model_.controls), layout));
   return c;
 }
 
@@ -152,8 +152,8 @@ std::vector<Complex> MasterSolver::correlation(const Dense& rho, const operators
 
 std::vector<double> MasterSolver::g2(int channel_a, int channel_b, const std::vector<double>& taus_us) const {
   const Dense rho = steady_state();
-  const auto& ca = model_.channels.at(std::size_t(channel_a)).op;
-  const auto& cb = model_.channels.at(std::size_t(channel_b)).op;
+  const auto ca = model_.channels.at(std::size_t(channel_a)).at(model_.start_us, model_.controls);
+  const auto cb = model_.channels.at(std::size_t(channel_b)).at(model_.start_us, model_.controls);
   const operators::Operator nb = cb.adjoint() * cb, na = ca.adjoint() * ca;
   const double ra = (matrix(na) * rho).trace().real(), rb = (matrix(nb) * rho).trace().real();
   auto g = correlation(rho, ca, nb, taus_us);
@@ -163,7 +163,7 @@ std::vector<double> MasterSolver::g2(int channel_a, int channel_b, const std::ve
 }
 
 double MasterSolver::rate(int channel) const {
-  const auto& c = model_.channels.at(std::size_t(channel)).op;
+  const auto c = model_.channels.at(std::size_t(channel)).at(model_.start_us, model_.controls);
   return (matrix(c.adjoint() * c) * steady_state()).trace().real();
 }
 
@@ -203,8 +203,13 @@ EvolveResult MasterSolver::evolve(const std::vector<double>& times_us,
         h += term.coefficient.constant_value(controls) * op;
     }
     std::vector<SparseMatrix> c;
-    for (const auto& ch : m.channels)
-      if (ch.op.active_in(layout)) c.push_back(operators::to_sparse(ch.op, layout));
+    for (const auto& ch : m.channels) {
+      for (const auto& term : ch.timed.terms())
+        if (term.coefficient.time_dependent())
+          throw InputError("master equation: channel '" + ch.label + "' depends on time (not supported by evolve)");
+      const operators::Operator op = ch.at(t, controls);
+      if (op.active_in(layout)) c.push_back(operators::to_sparse(op, layout));
+    }
     SparseCol l0 = master::liouvillian(h, c);
     std::vector<double> targets;
     std::size_t k = next_sample;

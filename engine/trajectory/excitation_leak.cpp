@@ -47,14 +47,43 @@ std::unique_ptr<ExcitationLeak> ExcitationLeak::build(const Model& m, const spac
       leak->out_const_ += c * b.second;
     }
   }
-  // −(i/2) Σ C†C: decay never raises the excitation number, so it only enters the out block.
+  // −(i/2) Σ C†C: decay never raises the excitation number, so it only enters the out block —
+  // except for a time-dependent channel, which may hold a c-number (a driven mode's field that
+  // was eliminated, α + ℓ): its C†C has the cross term α ℓ† that feeds the out shell.
   for (const auto& ch : m.channels) {
+    if (ch.time_dependent()) {
+      TimedChannel tc;
+      Sparse c_shell(shell.dimension(), shell.dimension()), c_between(shell.dimension(), layout.dimension());
+      auto add_part = [&](const operators::Operator& op, const operators::Coefficient& coef) {
+        if (!op.active_in(shell)) return;
+        Sparse a = Sparse(operators::to_sparse(op, shell)), b = Sparse(operators::to_sparse_between(op, layout, shell));
+        if (coef.time_dependent()) {
+          tc.parts.push_back({coef, {std::move(a), std::move(b)}});
+        } else {
+          const Complex v = coef.constant_value(controls);
+          c_shell += v * a;
+          c_between += v * b;
+        }
+      };
+      add_part(ch.op, operators::Coefficient{});
+      for (const auto& term : ch.timed.terms()) add_part(term.op, term.coefficient);
+      if (tc.parts.empty()) {
+        leak->feed_const_ += Complex(0.0, -0.5) * Sparse(select * Sparse(c_shell.adjoint()) * c_between);
+        leak->out_const_ += Complex(0.0, -0.5) * Sparse(select * Sparse(c_shell.adjoint()) * c_shell * select_t);
+      } else {
+        tc.constant = {std::move(c_shell), std::move(c_between)};
+        tc.select = select;
+        tc.select_t = select_t;
+        leak->timed_channels_.push_back(std::move(tc));
+      }
+      continue;
+    }
     if (!ch.op.active_in(shell)) continue;
     Sparse c = Sparse(operators::to_sparse(ch.op, shell));
     Sparse ctc = Sparse(c.adjoint()) * c;
     leak->out_const_ += Complex(0.0, -0.5) * Sparse(select * ctc * select_t);
   }
-  if (leak->timed_.empty() && n_out > 0) {
+  if (leak->timed_.empty() && leak->timed_channels_.empty() && n_out > 0) {
     leak->out_const_.makeCompressed();
     auto lu = std::make_shared<Eigen::SparseLU<Sparse>>();
     lu->compute(leak->out_const_);
@@ -72,6 +101,17 @@ double ExcitationLeak::population(const Vector& psi, double t_us) const {
     const Complex v = c->value(t_us, controls_);
     rhs += v * (b.first * psi);
     out += v * b.second;
+  }
+  for (const auto& tc : timed_channels_) {
+    Sparse cs = tc.constant.first, cb = tc.constant.second;
+    for (const auto& [coef, parts] : tc.parts) {
+      const Complex v = coef.value(t_us, controls_);
+      cs += v * parts.first;
+      cb += v * parts.second;
+    }
+    const Sparse csa = cs.adjoint();
+    rhs += Complex(0.0, -0.5) * (tc.select * (csa * (cb * psi)));
+    out += Complex(0.0, -0.5) * Sparse(tc.select * csa * cs * tc.select_t);
   }
   if (rhs.squaredNorm() == 0.0) return 0.0;
   Eigen::VectorXcd c_out;

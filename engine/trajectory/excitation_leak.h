@@ -31,6 +31,13 @@ class ExcitationLeak {
   using Sparse = Eigen::SparseMatrix<Complex, Eigen::ColMajor>;
   Sparse feed_const_, out_const_;  // out ← kept, out ← out (H_eff)
   std::vector<std::pair<const operators::Coefficient*, std::pair<Sparse, Sparse>>> timed_;
+  // Time-dependent channels: C = constant + Σ c_k(t) parts_k, each as (shell × shell, shell ← kept).
+  struct TimedChannel {
+    std::pair<Sparse, Sparse> constant;
+    std::vector<std::pair<operators::Coefficient, std::pair<Sparse, Sparse>>> parts;
+    Sparse select, select_t;  // out rows of the shell, and its transpose
+  };
+  std::vector<TimedChannel> timed_channels_;
   std::vector<Complex> controls_;
   std::shared_ptr<Eigen::SparseLU<Sparse>> lu_const_;  // factorized out block when nothing is time dependent
 };

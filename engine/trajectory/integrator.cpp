@@ -45,7 +45,18 @@ struct Stretch {
     double norm = 0;         // ‖Σ (constant·control)_k H_k‖_F, for the first step size
   };
   std::vector<TimedGroup> timed;
-  bool timed_any() const { return !timed.empty(); }
+  // Channels with a time-dependent part (channels::Channel::timed): C(t) = channel_ops[k] +
+  // Σ_g φ_g(t) M_g. Their −(i/2) C†C is applied in the right-hand side as C†(Cψ), so no product
+  // of two coefficients is formed; their constant part is not in heff_const / decay.
+  struct TimedChannel {
+    std::size_t k = 0;  // index into channel_ops / channel_ids
+    std::vector<std::pair<std::size_t, bool>> fn;  // (index into fns, conjugate) per part
+    std::vector<SparseMatrix> parts, parts_adj;    // M_g and M_g†
+    SparseMatrix constant_adj;                     // channel_ops[k]†
+    double norm = 0;                               // ‖C(t0)‖_F², for the first step size
+  };
+  std::vector<TimedChannel> timed_channels;
+  bool timed_any() const { return !timed.empty() || !timed_channels.empty(); }
   // The same right-hand side fused into one compressed-row matrix per *sector*: a connected
   // component of the graph of R0 and every R_g (states i, j joined when some R has an (i, j)
   // entry). −i H_eff(t) never moves amplitude between sectors, so a state that is exactly zero
@@ -405,8 +416,56 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
                        " us (||H - H^dagger|| = " + std::to_string(diff) + ")");
   }
   for (std::size_t k = 0; k < m.channels.size(); ++k) {
-    if (!m.channels[k].op.active_in(s->layout)) continue;
-    SparseMatrix c = operators::to_sparse(m.channels[k].op, s->layout);
+    const auto& ch = m.channels[k];
+    if (ch.time_dependent()) {
+      // Constant (incl. control-only) terms go into the constant part; each distinct time function
+      // gives one part M_g.
+      SparseMatrix c0 = ch.op.active_in(s->layout) ? operators::to_sparse(ch.op, s->layout) : SparseMatrix(n, n);
+      Stretch::TimedChannel tc;
+      bool active = ch.op.active_in(s->layout);
+      for (const auto& term : ch.timed.terms()) {
+        if (!term.op.active_in(s->layout)) continue;
+        active = true;
+        SparseMatrix op = operators::to_sparse(term.op, s->layout);
+        const auto& c = term.coefficient;
+        if (!c.time_dependent()) {
+          c0 += c.constant_value(controls) * op;
+          continue;
+        }
+        const operators::TimeFunction* f = c.time_fn.get();
+        std::size_t fi = std::size_t(std::find(s->fns.begin(), s->fns.end(), f) - s->fns.begin());
+        if (fi == s->fns.size()) s->fns.push_back(f);
+        std::size_t g = 0;
+        while (g < tc.fn.size() && tc.fn[g] != std::make_pair(fi, c.conjugate)) ++g;
+        if (g == tc.fn.size()) {
+          tc.fn.emplace_back(fi, c.conjugate);
+          tc.parts.push_back(SparseMatrix(n, n));
+        }
+        tc.parts[g] += c.control_factor(controls) * op;
+      }
+      if (!active) continue;
+      c0.prune(Complex(0.0));
+      if (tc.parts.empty()) {
+        decay += SparseMatrix(SparseMatrix(c0.adjoint()) * c0);
+      } else {
+        tc.k = s->channel_ops.size();
+        tc.constant_adj = c0.adjoint();
+        SparseMatrix at0 = c0;
+        for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+          tc.parts[g].prune(Complex(0.0));
+          tc.parts_adj.push_back(tc.parts[g].adjoint());
+          const Complex f0 = (*s->fns[tc.fn[g].first])(t_us);
+          at0 += (tc.fn[g].second ? std::conj(f0) : f0) * tc.parts[g];
+        }
+        tc.norm = at0.squaredNorm();
+        s->timed_channels.push_back(std::move(tc));
+      }
+      s->channel_ids.push_back(int(k));
+      s->channel_ops.push_back(std::move(c0));
+      continue;
+    }
+    if (!ch.op.active_in(s->layout)) continue;
+    SparseMatrix c = operators::to_sparse(ch.op, s->layout);
     decay += SparseMatrix(SparseMatrix(c.adjoint()) * c);
     s->channel_ids.push_back(int(k));
     s->channel_ops.push_back(std::move(c));
@@ -618,6 +677,32 @@ void fused_apply(const Stretch::FusedRhs& f, const Complex* phi, std::size_t slo
   }
 }
 
+// out = M·in (accumulate = false) or out += φ·M·in, for a compressed row-major sparse matrix in
+// real arithmetic (std::complex products call the NaN-checking __muldc3). Used for the
+// time-dependent channels, which are outside the fused kernel.
+void csr_apply(const SparseMatrix& m, const double* in, double* out, bool accumulate, Complex phi = 1.0) {
+  const auto* outer = m.outerIndexPtr();
+  const auto* inner = m.innerIndexPtr();
+  const double* val = reinterpret_cast<const double*>(m.valuePtr());
+  const double pr = phi.real(), pi = phi.imag();
+  for (long i = 0; i < m.rows(); ++i) {
+    double ar = 0, ai = 0;
+    for (auto k = outer[i]; k < outer[i + 1]; ++k) {
+      const double vr = val[2 * k], vi = val[2 * k + 1];
+      const double xr = in[2 * inner[k]], xi = in[2 * inner[k] + 1];
+      ar += vr * xr - vi * xi;
+      ai += vr * xi + vi * xr;
+    }
+    if (accumulate) {
+      out[2 * i] += pr * ar - pi * ai;
+      out[2 * i + 1] += pr * ai + pi * ar;
+    } else {
+      out[2 * i] = ar;
+      out[2 * i + 1] = ai;
+    }
+  }
+}
+
 Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, double t1, double r) {
   Leg leg;
   const double g0 = psi.squaredNorm() - r;
@@ -640,18 +725,35 @@ Leg propagate_adaptive(const Stretch& s, Run& run, Vector& psi, double t0, doubl
         break;
       }
     }
-    if (only >= 0) sec = &s.sectors[std::size_t(only)];
+    // Time-dependent channels (C†C of the eliminated modes) are not in the sector graph: their
+    // stretches integrate every state.
+    if (only >= 0 && s.timed_channels.empty()) sec = &s.sectors[std::size_t(only)];
   }
   const bool whole = sec->states.size() == std::size_t(psi.size());
   const long n = long(sec->states.size());
   std::vector<Complex> fv(s.fns.size());
   std::vector<Complex> phi(s.timed.size() + 1, Complex(1.0));
   std::vector<double> xs(2 * std::size_t(n));
+  StateVec cy(s.timed_channels.empty() ? 0 : 2 * n);  // C(t)ψ of a time-dependent channel
   auto system = [&](const StateVec& x, StateVec& dxdt, double t) {
     for (std::size_t k = 0; k < fv.size(); ++k) fv[k] = (*s.fns[k])(t);
     for (std::size_t g = 0; g < s.timed.size(); ++g)
       phi[g + 1] = s.timed[g].conjugate ? std::conj(fv[s.timed[g].fn]) : fv[s.timed[g].fn];
     fused_apply(sec->rhs, phi.data(), phi.size(), x.data(), xs.data(), dxdt.data());
+    // −i·(−(i/2) C†C)ψ = −(1/2) C†(Cψ) for each time-dependent channel (whole state: `sec` is
+    // `all`, compact index = full index).
+    for (const auto& tc : s.timed_channels) {
+      csr_apply(s.channel_ops[tc.k], x.data(), cy.data(), false);
+      for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+        const Complex f = fv[tc.fn[g].first];
+        csr_apply(tc.parts[g], x.data(), cy.data(), true, tc.fn[g].second ? std::conj(f) : f);
+      }
+      csr_apply(tc.constant_adj, cy.data(), dxdt.data(), true, -0.5);
+      for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+        const Complex f = fv[tc.fn[g].first];
+        csr_apply(tc.parts_adj[g], cy.data(), dxdt.data(), true, -0.5 * (tc.fn[g].second ? f : std::conj(f)));
+      }
+    }
   };
   StateVec x(2 * n);
   if (whole) {
@@ -850,7 +952,9 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
     std::vector<double> sig = stretch_signature(m, opt, probe, controls);
     for (std::size_t k = cache.entries.size(); k-- > 0;) {
       auto e = cache.entries[k];
-      if (!e->hermitian_by_structure || e->signature != sig) continue;
+      // Stretches with time-dependent channels are not shared: the signature and the rebinding
+      // cover the Hamiltonian's time functions only.
+      if (!e->hermitian_by_structure || !e->timed_channels.empty() || e->signature != sig) continue;
       e->owner = id_;
       e->present = layout.present();
       e->controls = controls;
@@ -917,6 +1021,13 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
       for (std::size_t k = 0; k < w.size(); ++k) {
         cpsi[k].resize(psi.size());
         cpsi[k].noalias() = s.channel_ops[k] * psi;
+      }
+      for (const auto& tc : s.timed_channels)
+        for (std::size_t g = 0; g < tc.parts.size(); ++g) {
+          const Complex f = (*s.fns[tc.fn[g].first])(t);
+          cpsi[tc.k] += (tc.fn[g].second ? std::conj(f) : f) * (tc.parts[g] * psi);
+        }
+      for (std::size_t k = 0; k < w.size(); ++k) {
         w[k] = cpsi[k].squaredNorm();
         total += w[k];
       }

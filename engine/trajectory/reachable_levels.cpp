@@ -26,7 +26,18 @@ long prune_unreachable_levels(Model& m) {
             if (a != b && f.matrix(a, b) != Complex(0.0)) next[std::size_t(f.target)][std::size_t(b)].push_back(int(a));
   };
   for (const auto& t : m.hamiltonian.terms()) edges(t.op);
-  for (const auto& c : m.channels) edges(c.op);
+  for (const auto& c : m.channels) {
+    edges(c.op);
+    if (!c.time_dependent()) continue;
+    // A time-dependent channel may hold a c-number (an eliminated driven mode, α + ℓ): then its
+    // −(i/2) C†C also connects levels through ℓ†, so the products of its parts count too.
+    std::vector<operators::Operator> parts{c.op};
+    for (const auto& t : c.timed.terms()) parts.push_back(t.op);
+    for (const auto& a : parts) {
+      edges(a.adjoint());
+      for (const auto& b : parts) edges(a.adjoint() * b);
+    }
+  }
   long pruned = 0;
   for (std::size_t id = 0; id < n; ++id) {
     std::vector<int> stack;

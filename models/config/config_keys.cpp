@@ -245,6 +245,12 @@ std::vector<KeySpec> build_keys() {
                   "(photons plus excited atoms). Set: every cluster uses it; unset: only clusters whose full basis "
                   "exceeds run.max_cluster_dimension_count, with 2. The leaked norm is reported.",
                   0.0, false, 20.0, T::kInteger));
+  k.push_back(str("run.cluster_method", "auto", O,
+                  "How clusters of atoms sharing the resonator are integrated (docs/simulate.md, Cluster methods). "
+                  "auto: exact basis, else excitation-truncated, else the eliminated modes where valid (bad "
+                  "cavity: N g² and the atomic rates small against κ), else independent atoms; exact, truncated, "
+                  "eliminated, independent: force that method.",
+                  {"auto", "exact", "truncated", "eliminated", "independent"}));
   k.push_back(num("run.relative_tolerance_fraction", "fraction", "1e-6", O,
                   "Relative accuracy of the trajectory integrator.", 0.0, true, 1.0));
   k.push_back(num("run.arrival_block_us", "µs", "100", O,

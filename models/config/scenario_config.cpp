@@ -536,6 +536,7 @@ void read_run(const Reader& r, const toml::table& t, ScenarioConfig& sc) {
   run.interaction_cutoff = Reader::num(t, "interaction_cutoff_fraction").value_or(1e-3);
   run.max_cluster_dimension = Reader::integer(t, "max_cluster_dimension_count").value_or(20000);
   if (auto k = Reader::integer(t, "max_excitation_count")) run.max_excitation = int(*k);
+  if (auto m = Reader::str(t, "cluster_method")) run.cluster_method = cluster_method_from_string(*m);
   run.relative_tolerance = Reader::num(t, "relative_tolerance_fraction").value_or(1e-6);
   run.arrival_block_us = Reader::num(t, "arrival_block_us").value_or(100.0);
   run.tagger_resolution_ps = Reader::num(t, "tagger_resolution_ps").value_or(1.0);
@@ -543,6 +544,25 @@ void read_run(const Reader& r, const toml::table& t, ScenarioConfig& sc) {
 }
 
 }  // namespace
+
+const char* to_string(ClusterMethodChoice c) {
+  switch (c) {
+    case ClusterMethodChoice::kAuto: return "auto";
+    case ClusterMethodChoice::kExact: return "exact";
+    case ClusterMethodChoice::kTruncated: return "truncated";
+    case ClusterMethodChoice::kEliminated: return "eliminated";
+    case ClusterMethodChoice::kIndependent: return "independent";
+  }
+  return "auto";
+}
+
+ClusterMethodChoice cluster_method_from_string(const std::string& name) {
+  for (auto c : {ClusterMethodChoice::kAuto, ClusterMethodChoice::kExact, ClusterMethodChoice::kTruncated,
+                 ClusterMethodChoice::kEliminated, ClusterMethodChoice::kIndependent})
+    if (name == to_string(c)) return c;
+  throw InputError("run.cluster_method: unknown method '" + name +
+                   "' (choose auto, exact, truncated, eliminated or independent)");
+}
 
 ScenarioConfig parse_config(std::string_view text, std::string_view source_name) {
   const std::string name(source_name);

@@ -76,6 +76,12 @@ struct SourceConfig {
   source::PopulationSpec populations;
 };
 
+// run.cluster_method: how joint clusters are integrated (docs/simulate.md, "Cluster methods").
+enum class ClusterMethodChoice { kAuto, kExact, kTruncated, kEliminated, kIndependent };
+const char* to_string(ClusterMethodChoice c);
+// Throws flyby::InputError for an unknown name (the config reader has checked it already).
+ClusterMethodChoice cluster_method_from_string(const std::string& name);
+
 struct RunConfig {
   double duration_s = 0.0;
   std::uint64_t seed = 1;
@@ -86,6 +92,7 @@ struct RunConfig {
   // max_cluster_dimension, with kDefaultMaxExcitation (docs/simulate.md, "Cluster methods").
   std::optional<int> max_excitation;
   static constexpr int kDefaultMaxExcitation = 2;
+  ClusterMethodChoice cluster_method = ClusterMethodChoice::kAuto;
   double relative_tolerance = 1e-6;
   double arrival_block_us = 100.0;
   double tagger_resolution_ps = 1.0;

@@ -277,7 +277,6 @@ Plan make_plan(const config::CheckedScenario& s, const ClusterModelBuilder& buil
 
   // Trajectories: one per cluster (exact or excitation-truncated basis), or one per atom
   // (uncoupled atoms: exact; independent atoms above the dimension cap: approximation).
-  const double mode_dim = s.resonator ? std::pow(double(s.resonator->fock_cutoff + 1), 2) : 1.0;
   std::vector<Item> traj;
   for (std::size_t ci = 0; ci < plan.clusters.size(); ++ci) {
     const auto& c = plan.clusters[ci];
@@ -285,9 +284,15 @@ Plan make_plan(const config::CheckedScenario& s, const ClusterModelBuilder& buil
     sum.max_simultaneous_atoms = std::max(sum.max_simultaneous_atoms, k);
     const ClusterPlan p = builder.plan(k);
     if (p.basis.max_excitation) sum.max_excitation = p.basis.max_excitation;
-    const bool joint = p.method == ClusterMethod::kExact || p.method == ClusterMethod::kTruncated;
+    const bool joint = p.method == ClusterMethod::kExact || p.method == ClusterMethod::kTruncated ||
+                       p.method == ClusterMethod::kEliminated;
     if (joint) {
-      ++(p.method == ClusterMethod::kExact ? sum.exact_clusters : sum.truncated_clusters);
+      if (p.method == ClusterMethod::kEliminated) {
+        ++sum.eliminated_clusters;
+        sum.elimination_ratio_max = std::max(sum.elimination_ratio_max.value_or(0.0), p.validity_ratio.value_or(0.0));
+      } else {
+        ++(p.method == ClusterMethod::kExact ? sum.exact_clusters : sum.truncated_clusters);
+      }
       Item t;
       t.start_us = c.span.begin_us;
       t.end_us = std::min(c.span.end_us, D);
@@ -318,6 +323,10 @@ Plan make_plan(const config::CheckedScenario& s, const ClusterModelBuilder& buil
     sum.warnings.push_back(std::to_string(sum.fallback_clusters) +
                            " cluster(s) above run.max_cluster_dimension_count even with the excitation truncation were "
                            "simulated as independent single-atom sub-clusters (no collective effects between their atoms)");
+  if (sum.elimination_ratio_max && *sum.elimination_ratio_max > kEliminationMaxRatio)
+    sum.warnings.push_back("resonator modes eliminated outside their validity: ratio " +
+                           std::to_string(*sum.elimination_ratio_max) + " > " + std::to_string(kEliminationMaxRatio) +
+                           " (N g^2/(kappa^2 + Delta^2) or an atomic rate/kappa; docs/simulate.md, Cluster methods)");
   sum.trajectories = traj.size();
   for (std::size_t i = 0; i < traj.size(); ++i) traj[i].order = i;
 
@@ -883,6 +892,9 @@ std::string Summary::full_report() const {
   os << "  top-Fock population (max) " << top_fock_population_max << "\n";
   os << "  cluster methods: " << exact_clusters << " exact, " << truncated_clusters << " truncated";
   if (max_excitation) os << " (<= " << *max_excitation << " excitations)";
+  os << ", " << eliminated_clusters << " eliminated modes (approximation";
+  if (elimination_ratio_max) os << ", validity ratio max " << *elimination_ratio_max;
+  os << ")";
   os << ", " << fallback_clusters << " independent atoms (approximation), " << uncoupled_clusters
      << " uncoupled (exact); " << pruned_levels << " unreachable sublevels pruned\n";
   if (max_excitation)
@@ -928,6 +940,8 @@ std::string Summary::to_json() const {
   j["truncated_clusters_count"] = truncated_clusters;
   j["independent_clusters_count"] = fallback_clusters;
   j["uncoupled_clusters_count"] = uncoupled_clusters;
+  j["eliminated_clusters_count"] = eliminated_clusters;
+  if (elimination_ratio_max) j["elimination_validity_ratio"] = *elimination_ratio_max; else j["elimination_validity_ratio"] = nullptr;
   if (max_excitation) j["max_excitation_count"] = *max_excitation; else j["max_excitation_count"] = nullptr;
   j["excitation_leak_fraction"] = excitation_leak_max;
   j["attach_dropped_fraction"] = attach_dropped_max;

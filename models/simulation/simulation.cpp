@@ -2,9 +2,12 @@
 // docs/simulate.md); the run driver is in run_driver.cpp.
 #include "models/simulation/simulation.h"
 
+#include <Eigen/SVD>
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <map>
+#include <tuple>
 #include <memory>
 #include <sstream>
 
@@ -16,6 +19,7 @@
 #include "engine/trajectory/reachable_levels.h"
 #include "models/detectors/detector_config.h"
 #include "models/scenario/atom_view.h"
+#include "models/source/speed_distribution.h"
 
 namespace flyby::simulation {
 
@@ -182,9 +186,10 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
 // Basis size with k atoms together: full product, or the states with ≤ K excitations —
 // Σ_j C(k, j) x^j y^(k−j) · #{(n1, n2) ≤ cutoff: n1 + n2 ≤ K − j}, x (y) the excited (other)
 // sublevels per atom.
-double cluster_dimension(const config::CheckedScenario& s, const AtomMatrices& A, int k, std::optional<int> K) {
+double cluster_dimension(const config::CheckedScenario& s, const AtomMatrices& A, int k, std::optional<int> K,
+                         bool with_modes = true) {
   const int cut = s.resonator ? s.resonator->fock_cutoff : 0;
-  const int modes = s.resonator ? 2 : 0;
+  const int modes = s.resonator && with_modes ? 2 : 0;
   if (!K) return std::pow(double(cut + 1), modes) * std::pow(double(A.dim), k);
   double x = 0;
   for (bool e : A.excited) x += e;
@@ -204,10 +209,47 @@ double cluster_dimension(const config::CheckedScenario& s, const AtomMatrices& A
   return total;
 }
 
+EliminationValidity validity(const config::CheckedScenario& s, const AtomMatrices& A, int k) {
+  EliminationValidity v;
+  if (!s.resonator) return v;
+  const auto& R = *s.resonator;
+  const double kappa = R.kappa_rad_per_us, frame = frame_detuning_rad_per_us(s);
+  // Largest coupling of one atom to one mode: g0 × the largest singular value of Σ_q w_iq A_q.
+  const auto w = R.mode_weights(s.frame);
+  double g_max = 0.0;
+  for (int i = 0; i < 2; ++i) {
+    LocalMatrix down = LocalMatrix::Zero(A.dim, A.dim);
+    for (int q = 0; q < 3; ++q) down += std::conj(w[i][q]) * A.coupling[q];
+    Eigen::JacobiSVD<LocalMatrix> svd(down);
+    if (svd.singularValues().size() > 0) g_max = std::max(g_max, R.g0_rad_per_us * svd.singularValues()(0));
+  }
+  double denom = std::numeric_limits<double>::infinity();
+  for (int i = 0; i < 2; ++i) {
+    const double d = R.detuning_rad_per_us[i] - frame;
+    denom = std::min(denom, kappa * kappa + d * d);
+  }
+  v.collective_ratio = double(std::max(k, 1)) * g_max * g_max / denom;
+  // Atomic rates: Γ, side-drive Rabi frequencies, detunings of coupled transitions from the frame.
+  double rate = s.levels.gamma_rad_per_us();
+  for (double om : s.side_drive_rabi_rad_per_us) rate = std::max(rate, std::abs(om));
+  const auto E = scenario::reference_frame_energies_rad_per_us(s);
+  for (int q = 0; q < 3; ++q)
+    for (int g = 0; g < int(E.size()); ++g)
+      for (int e = 0; e < int(E.size()); ++e)
+        if (A.coupling[q](g, e) != Complex(0.0))
+          rate = std::max(rate, std::abs((E[e] - A.frame_offset[e] - frame) - (E[g] - A.frame_offset[g])));
+  if (s.config.source.kind == config::SourceKind::kBeam && R.waist_um > 0)
+    rate = std::max(rate, 2.0 * source::mean_speed_m_per_s(s.config.source.beam.speed) / R.waist_um);
+  v.rate_ratio = rate / kappa;
+  return v;
+}
+
 ClusterPlan plan(const config::CheckedScenario& s, const AtomMatrices& A, int k) {
   ClusterPlan p;
   const double cap = double(s.config.run.max_cluster_dimension);
   const auto& K = s.config.run.max_excitation;
+  using Choice = config::ClusterMethodChoice;
+  const Choice choice = s.config.run.cluster_method;
   // Without a resonator and without feedback (a click switching a drive that all atoms see),
   // nothing couples the atoms of a cluster.
   if (!s.resonator && s.config.feedback.empty() && k > 1) {
@@ -215,6 +257,38 @@ ClusterPlan plan(const config::CheckedScenario& s, const AtomMatrices& A, int k)
     p.basis.max_excitation = K;
     p.dimension = cluster_dimension(s, A, 1, K);
     return p;
+  }
+  auto eliminated = [&](std::optional<int> K_atoms) {
+    ClusterPlan e;
+    e.method = ClusterMethod::kEliminated;
+    e.basis.eliminate_modes = true;
+    e.basis.max_excitation = K_atoms;
+    e.dimension = cluster_dimension(s, A, k, K_atoms, false);
+    e.validity_ratio = validity(s, A, k).ratio();
+    return e;
+  };
+  // A forced method applies to joint clusters; the elimination also to single atoms (it removes
+  // the modes from the basis whatever the atom number).
+  if ((k > 1 || choice == Choice::kEliminated) && choice != Choice::kAuto) {
+    switch (choice) {
+      case Choice::kExact:
+        p.dimension = cluster_dimension(s, A, k, std::nullopt);
+        return p;
+      case Choice::kTruncated:
+        p.method = ClusterMethod::kTruncated;
+        p.basis.max_excitation = K.value_or(config::RunConfig::kDefaultMaxExcitation);
+        p.dimension = cluster_dimension(s, A, k, p.basis.max_excitation);
+        return p;
+      case Choice::kEliminated:
+        if (s.resonator) return eliminated(K);
+        break;
+      case Choice::kIndependent:
+        p.method = ClusterMethod::kIndependent;
+        p.basis.max_excitation = K;
+        p.dimension = cluster_dimension(s, A, 1, K);
+        return p;
+      case Choice::kAuto: break;
+    }
   }
   if (!K) {
     p.dimension = cluster_dimension(s, A, k, std::nullopt);
@@ -224,6 +298,13 @@ ClusterPlan plan(const config::CheckedScenario& s, const AtomMatrices& A, int k)
   p.basis.max_excitation = K.value_or(config::RunConfig::kDefaultMaxExcitation);
   p.dimension = cluster_dimension(s, A, k, p.basis.max_excitation);
   if (p.dimension <= cap || k <= 1) return p;
+  if (s.resonator) {
+    // Above the cap even with the truncation: the eliminated modes where they are valid, with the
+    // atoms' full basis if it fits, else truncated over the atoms.
+    ClusterPlan e = eliminated(K);
+    if (!K && e.dimension > cap) e = eliminated(config::RunConfig::kDefaultMaxExcitation);
+    if (e.dimension <= cap && *e.validity_ratio <= kEliminationMaxRatio) return e;
+  }
   p.method = ClusterMethod::kIndependent;
   p.basis = {};
   p.dimension = cluster_dimension(s, A, 1, K);
@@ -236,6 +317,7 @@ const char* to_string(ClusterMethod m) {
   switch (m) {
     case ClusterMethod::kExact: return "exact";
     case ClusterMethod::kTruncated: return "truncated";
+    case ClusterMethod::kEliminated: return "eliminated";
     case ClusterMethod::kIndependent: return "independent";
     case ClusterMethod::kUncoupled: return "uncoupled";
   }
@@ -244,6 +326,10 @@ const char* to_string(ClusterMethod m) {
 
 ClusterPlan plan_cluster(const config::CheckedScenario& s, int atoms_together) {
   return plan(s, atom_matrices(s), atoms_together);
+}
+
+EliminationValidity elimination_validity(const config::CheckedScenario& s, int atoms_together) {
+  return validity(s, atom_matrices(s), atoms_together);
 }
 
 trajectory::Model build_cluster_model(const config::CheckedScenario& s, const std::vector<ClusterAtom>& atoms,
@@ -268,6 +354,134 @@ ClusterModelBuilder cluster_model_builder(const config::CheckedScenario& s) {
 }
 
 namespace {
+
+// An atom of a cluster whose resonator modes are eliminated.
+struct CoupledAtom {
+  space::SubsystemId id;
+  Coefficient g;                    // g_j(t): the exact builder's term g·(a_i ⊗ up_ij) + h.c.
+  std::array<LocalMatrix, 2> down;  // up_ij† = Σ_q w_iq* A_q per mode i; S_i = Σ_j g_j* down_ij
+};
+
+// Products of two coefficients (the G†G terms). At most one factor may carry a control. The time
+// functions of the factors are multiplied into one new shared function, cached per pair, so that
+// every term with the same pair (both modes, c·O and its conjugate) shares it and the integrator
+// evaluates it once per right-hand side; a product with a constant keeps the factor's function.
+class CoefficientProducts {
+ public:
+  Coefficient operator()(const Coefficient& a, const Coefficient& b) {
+    FLYBY_CHECK(!(a.control && b.control), "product of two coefficients with controls");
+    const Coefficient& x = b.control ? b : a;
+    Coefficient r;
+    r.constant = a.constant * b.constant;
+    r.control = x.control;
+    r.conjugate = x.control ? x.conjugate : false;
+    // value(r) = constant·(conj_r ? conj(F·u) : F·u) must equal a.constant·b.constant·e_a·e_b·u′,
+    // e = f or conj f as the factor's flag says, u′ the control as x sees it: F = e_a·e_b or
+    // its conjugate when conj_r.
+    const bool fa = bool(a.time_fn), fb = bool(b.time_fn);
+    if (!fa && !fb) return r;
+    if (fa != fb) {
+      const Coefficient& y = fa ? a : b;
+      if (y.conjugate == r.conjugate) {
+        r.time_fn = y.time_fn;
+        return r;
+      }
+    }
+    const auto key = std::make_tuple(a.time_fn.get(), fa && a.conjugate, b.time_fn.get(), fb && b.conjugate, r.conjugate);
+    auto it = cache_.find(key);
+    if (it == cache_.end()) {
+      operators::SharedTimeFunction f1 = a.time_fn, f2 = b.time_fn;
+      const bool c1 = a.conjugate, c2 = b.conjugate, cr = r.conjugate;
+      auto fn = std::make_shared<const operators::TimeFunction>([f1, f2, c1, c2, cr](double t) {
+        Complex v{1.0, 0.0};
+        if (f1) v *= c1 ? std::conj((*f1)(t)) : (*f1)(t);
+        if (f2) v *= c2 ? std::conj((*f2)(t)) : (*f2)(t);
+        return cr ? std::conj(v) : v;
+      });
+      it = cache_.emplace(key, std::move(fn)).first;
+    }
+    r.time_fn = it->second;
+    return r;
+  }
+
+ private:
+  std::map<std::tuple<const void*, bool, const void*, bool, bool>, operators::SharedTimeFunction> cache_;
+};
+
+Coefficient scaled(Coefficient c, Complex s) {
+  c.constant *= s;
+  return c;
+}
+
+// Adiabatic elimination of both resonator modes (bad-cavity limit; docs/simulate.md, "Cluster
+// methods"). Mode i: H_eff,i = (Δ_i − iκ) a_i†a_i + G_i†a_i + a_i†G_i with G_i = η_i(t) + S_i, η_i
+// the resonator drives and S_i = Σ_j g_j* down_ij (exactly the exact builder's coupling). Setting
+// da_i/dt = 0 gives a_i → F_i = α_i(t) + ℓ_i, ℓ_i = −S_i/(Δ_i − iκ), with α_i(t) = Σ_d −E_d
+// e^{−iδ_d t}/(Δ_i − δ_d − iκ) the empty driven mode of empty_resonator_amplitudes (each drive
+// frequency with its own response, so two drives stay exact); the atoms' effective
+// non-Hermitian Hamiltonian gains −G_i†G_i/(Δ_i − iκ). Split as the engine needs it:
+//   channels  C = Σ_i c_i F_i (each resonator channel projects the two eliminated fields as it
+//             projected a_1, a_2, so Σ C†C = Σ_i 2κ F_i†F_i and the atoms' fields interfere);
+//   H         −Δ_i/(Δ_i² + κ²) S_i†S_i + [α_i* Δ_i/(Δ_i − iκ) S_i + h.c.],
+// which with −(i/2) Σ C†C gives back −G_i†G_i/(Δ_i − iκ) for one drive frequency (the −(i/2)
+// cross terms α_i* ℓ_i of C†C carry the resonant drive of the atoms; at Δ_i = 0 H has no mode
+// term at all).
+void add_eliminated_modes(const config::CheckedScenario& s, trajectory::Model& m, const std::vector<CoupledAtom>& atoms,
+                          double frame, int n_side,
+                          const std::function<void(const std::string&, bool, Operator)>& add_channel) {
+  const auto& R = *s.resonator;
+  const double kappa = R.kappa_rad_per_us;
+  CoefficientProducts product;
+  // Drive terms of α_i(t), per mode: coefficient (with the drive's control) of the identity.
+  std::array<std::vector<Coefficient>, 2> alpha;
+  for (int d = 0; d < int(s.config.resonator_drives.size()); ++d) {
+    const auto& drv = s.config.resonator_drives[std::size_t(d)];
+    const int i = drv.mode;
+    const double E = s.resonator_drive_amplitude_rad_per_us[std::size_t(d)];
+    const double delta = kTwoPi * drv.detuning_MHz - frame;
+    const Complex amp = -E / Complex(R.detuning_rad_per_us[i] - frame - delta, -kappa);
+    alpha[std::size_t(i)].push_back(
+        delta == 0.0 ? Coefficient::of_control(n_side + d, amp)
+                     : Coefficient::of_control(n_side + d, amp, [delta](double t) { return std::exp(Complex(0.0, -delta * t)); }));
+  }
+  for (int i = 0; i < 2; ++i) {
+    const double D = R.detuning_rad_per_us[i] - frame;
+    const Complex denom(D, -kappa);
+    if (D == 0.0) continue;
+    const double h = -D / (D * D + kappa * kappa);
+    for (std::size_t j = 0; j < atoms.size(); ++j) {
+      const auto& aj = atoms[j];
+      const LocalMatrix& dj = aj.down[std::size_t(i)];
+      if (dj.norm() == 0.0) continue;
+      const LocalMatrix uj = dj.adjoint();
+      // S_i†S_i = Σ_jk g_j g_k* up_ij down_ik: diagonal terms real, pairs as c·O + h.c.
+      m.hamiltonian.add(scaled(product(aj.g, aj.g.conj()), h), Operator::local(aj.id, uj * dj));
+      for (std::size_t k = j + 1; k < atoms.size(); ++k) {
+        const auto& ak = atoms[k];
+        const LocalMatrix& dk = ak.down[std::size_t(i)];
+        if (dk.norm() == 0.0) continue;
+        m.hamiltonian.add_hermitian(scaled(product(aj.g, ak.g.conj()), h),
+                                    Operator::product({{aj.id, uj}, {ak.id, dk}}));
+      }
+      for (const auto& al : alpha[std::size_t(i)])
+        m.hamiltonian.add_hermitian(scaled(product(al.conj(), aj.g.conj()), D / denom), Operator::local(aj.id, dj));
+    }
+  }
+  for (const auto& ch : R.channels) {
+    add_channel(ch.channel, ch.detected, Operator{});
+    operators::TimeOperator& c = m.channels.back().timed;
+    for (int i = 0; i < 2; ++i) {
+      const Complex ci = ch.coefficients(i);
+      if (ci == Complex(0.0)) continue;
+      const Complex denom(R.detuning_rad_per_us[i] - frame, -kappa);
+      for (const auto& al : alpha[std::size_t(i)]) c.add(scaled(al, ci), Operator::identity());
+      for (const auto& aj : atoms)
+        if (aj.down[std::size_t(i)].norm() > 0.0)
+          c.add(scaled(aj.g.conj(), -ci / denom), Operator::local(aj.id, aj.down[std::size_t(i)]));
+    }
+  }
+}
+
 trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatrices& A,
                               const std::vector<ClusterAtom>& atoms, double start_us, double end_us,
                               std::vector<int>& channel_of, const ClusterBasis& basis) {
@@ -295,10 +509,13 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
     m.control_names.push_back(s.config.resonator_drives[d].name);
   }
 
-  // Resonator modes 0 and 1.
+  // Resonator modes 0 and 1 (unless they are eliminated: then the atoms come first and the
+  // modes' field is written in terms of them after the atom loop).
   const bool has_res = s.resonator.has_value();
+  const bool eliminate = has_res && basis.eliminate_modes;
   std::array<LocalMatrix, 2> a;
-  if (has_res) {
+  std::vector<CoupledAtom> coupled;  // eliminated modes: the atoms' couplings
+  if (has_res && !eliminate) {
     const auto& R = *s.resonator;
     const int cut = R.fock_cutoff;
     const auto alpha = empty_resonator_amplitudes(s, start_us);
@@ -369,7 +586,18 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
     }
     // Resonator coupling g(t) Σ_i (a_i† Σ_q w_iq A_q + h.c.) — written as the atom-raising part
     // g(t) Σ_q w_iq A_q† a_i plus its conjugate.
-    if (has_res) {
+    if (eliminate) {
+      const auto& w = view.mode_weights();
+      CoupledAtom c{id, fixed ? Coefficient::scalar(view.resonator_coupling(start_us))
+                          : Coefficient::of_time([view](double t) { return view.resonator_coupling(t); }),
+                {}};
+      for (int i = 0; i < 2; ++i) {
+        LocalMatrix up = LocalMatrix::Zero(A.dim, A.dim);
+        for (int q = 0; q < 3; ++q) up += w[i][q] * A.coupling[q].adjoint();
+        c.down[std::size_t(i)] = up.adjoint();
+      }
+      coupled.push_back(std::move(c));
+    } else if (has_res) {
       const auto& w = view.mode_weights();
       // One coefficient (one shared time function) for both modes: the engine evaluates g(t) once
       // per right-hand side for all four terms.
@@ -434,6 +662,8 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
       }
     }
   }
+
+  if (eliminate) add_eliminated_modes(s, m, coupled, frame, n_side, add_channel);
 
   // Feedback rules as a jump hook (hold-off per rule, per trajectory).
   if (!s.config.feedback.empty()) {
