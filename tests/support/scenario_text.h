@@ -135,6 +135,62 @@ speed_m_per_s = )" + toml_number(o.speed_m_per_s) + "\n" + profile + "axial_exte
 duration_s = )" + toml_number(o.duration_s) + "\nseed_id = " + std::to_string(o.seed) + "\n" + o.run_lines;
 }
 
+// N identical two-level atoms at one antinode of a weakly driven resonator: a custom F = 0 → F′ = 1
+// atom with B along x (the quantization axis) and mode 1 polarized along x, so mode 1 drives only
+// the π transition |0,0⟩ ↔ |1′,0⟩ with Clebsch–Gordan weight 1 (a two-level atom in the sense of
+// the weak-drive closed forms); mode 2 stays empty. Channel "H" behind a polarizing beam splitter
+// sees mode 1.
+struct AntinodeScenario {
+  std::uint64_t seed = 1;             // run.seed_id
+  double duration_s = 1e-3;           // run.duration_s, lab seconds
+  int atoms_count = 1;                // atoms, all at the origin
+  double gamma_MHz = 6.0;             // excited-state decay rate Γ/2π, MHz
+  double kappa_MHz = 3.0;             // resonator field decay κ/2π, MHz
+  double g0_MHz = 3.0;                // peak coupling g0/2π, MHz
+  double empty_photons = 0.01;        // mean photons of the driven empty resonator
+  std::string resonator_lines;        // extra keys of the [resonator] table (cutoff, detuning, frame)
+  std::string run_lines;              // extra `key = value` lines of the [run] table
+};
+
+inline std::string antinode_scenario_text(const AntinodeScenario& o) {
+  std::string pos;
+  for (int k = 0; k < o.atoms_count; ++k) pos += std::string(k ? ", " : "") + "[0, 0, 0]";
+  return R"([atom]
+species = "custom"
+ground_F = 0
+excited_F = 1
+gamma_MHz = )" + toml_number(o.gamma_MHz) + R"(
+wavelength_nm = 780.0
+ground_gF = 0.0
+excited_gF = 0.5
+[field]
+B_G = [0.1, 0, 0]
+[resonator]
+length_mm = 0.25
+waist_um = 25.0
+kappa_MHz = )" + toml_number(o.kappa_MHz) + R"(
+g0_MHz = )" + toml_number(o.g0_MHz) + R"(
+output_mirror_fraction = 0.7
+)" + o.resonator_lines + R"(
+[[drive]]
+name = "probe"
+kind = "resonator"
+mode_index = 1
+empty_mean_photons_count = )" + toml_number(o.empty_photons) + R"(
+[[channel]]
+name = "H"
+source = "resonator"
+analyzer = "pbs"
+polarization = "linear"
+polarization_angle_deg = 0
+efficiency_fraction = 0.6
+[source]
+kind = "stationary"
+positions_um = [)" + pos + R"(]
+[run]
+duration_s = )" + toml_number(o.duration_s) + "\nseed_id = " + std::to_string(o.seed) + "\n" + o.run_lines;
+}
+
 // Checks `text` as a scenario (named `name` in errors) and simulates it to `output_path`; the
 // caller checks `ok` of the summary it returns.
 inline simulation::Summary simulate_text(const std::string& text, const std::string& name,

@@ -11,6 +11,8 @@
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
 #include "tests/engine/engine_test_models.h"
+#include "tests/support/coverage.h"
+#include "tests/support/scenario_text.h"
 #include "tests/support/scratch_dir.h"
 #include "tests/support/test_seed.h"
 
@@ -21,52 +23,20 @@ using flyby::test::ScratchDir;
 constexpr double kKappaMHz = 3.0, kGammaMHz = 6.0, kG0MHz = 3.0;  // C1 = g0²/(κΓ) = 0.5
 constexpr double kEmptyPhotons = 0.01, kMirror = 0.7, kEfficiency = 0.6;
 
-// Custom F = 0 → F′ = 1 atom with B along x (the quantization axis) and mode 1 polarized along x:
-// mode 1 drives only the π transition |0,0⟩ ↔ |1′,0⟩ with Clebsch–Gordan weight 1 — a two-level
-// atom in the sense of the closed form; mode 2 stays empty. Atoms all at the origin (antinode).
+// N two-level atoms at one antinode (tests/support/scenario_text.h).
 std::string config(std::uint64_t seed, int atoms, double duration_s, const std::string& run_extra,
                    double empty_photons = kEmptyPhotons, const std::string& resonator_extra = "") {
-  std::string pos;
-  for (int k = 0; k < atoms; ++k) pos += std::string(k ? ", " : "") + "[0, 0, 0]";
-  return R"(
-[atom]
-species = "custom"
-ground_F = 0
-excited_F = 1
-gamma_MHz = )" + std::to_string(kGammaMHz) + R"(
-wavelength_nm = 780.0
-ground_gF = 0.0
-excited_gF = 0.5
-[field]
-B_G = [0.1, 0, 0]
-[resonator]
-length_mm = 0.25
-waist_um = 25.0
-kappa_MHz = )" + std::to_string(kKappaMHz) + R"(
-g0_MHz = )" + std::to_string(kG0MHz) + R"(
-output_mirror_fraction = 0.7
-)" + resonator_extra + R"(
-[[drive]]
-name = "probe"
-kind = "resonator"
-mode_index = 1
-empty_mean_photons_count = )" + std::to_string(empty_photons) + R"(
-[[channel]]
-name = "H"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 0
-efficiency_fraction = 0.6
-[source]
-kind = "stationary"
-positions_um = [)" + pos + R"(]
-[[population]]
-ground_F = 0
-m_F = 0
-probability_fraction = 1.0
-[run]
-duration_s = )" + std::to_string(duration_s) + "\nseed_id = " + std::to_string(seed) + "\n" + run_extra;
+  flyby::test::AntinodeScenario o;
+  o.seed = seed;
+  o.atoms_count = atoms;
+  o.duration_s = duration_s;
+  o.gamma_MHz = kGammaMHz;
+  o.kappa_MHz = kKappaMHz;
+  o.g0_MHz = kG0MHz;
+  o.empty_photons = empty_photons;
+  o.resonator_lines = resonator_extra;
+  o.run_lines = run_extra;
+  return flyby::test::antinode_scenario_text(o);
 }
 
 struct Rate {
@@ -88,21 +58,9 @@ Rate measure(const std::string& name, int atoms, double duration_s, const std::s
   Rate r;
   r.summary = flyby::simulation::simulate(s, o);
   const auto rec = flyby::records::read_record(o.output_path);
-  const int batches = 50;
-  std::vector<double> k(batches, 0.0);
-  const double D_ps = duration_s * 1e12;
-  for (std::size_t i = 0; i < rec.tags.size(); ++i)
-    k[std::min<std::size_t>(batches - 1, std::size_t(double(rec.tags.time_ps[i]) / D_ps * batches))] += 1.0;
-  double m = 0, s2 = 0;
-  for (int i = 0; i < batches; ++i) {  // Welford
-    const double dx = k[std::size_t(i)] - m;
-    m += dx / (i + 1);
-    s2 += dx * (k[std::size_t(i)] - m);
-  }
-  s2 /= batches - 1;
-  const double batch_us = duration_s * 1e6 / batches;
-  r.per_us = m / batch_us;
-  r.stderr_per_us = std::sqrt(s2 / batches) / batch_us;
+  const auto b = flyby::test::batch_rate(rec.tags.time_ps, duration_s);
+  r.per_us = b.per_us;
+  r.stderr_per_us = b.stderr_per_us;
   return r;
 }
 

@@ -23,7 +23,9 @@
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
 #include "tests/engine/engine_test_models.h"
+#include "tests/support/coverage.h"
 #include "tests/support/scratch_dir.h"
+#include "tests/support/scenario_text.h"
 #include "tests/support/test_seed.h"
 
 namespace {
@@ -53,53 +55,20 @@ std::string num(double x) {
 double kappa_MHz(const Setup& s) { return s.kappa_over_g * kG0MHz; }
 double gamma_MHz(const Setup& s) { return kG0MHz * kG0MHz / (kappa_MHz(s) * kC1); }
 
-// Custom F = 0 → F′ = 1 atom, B along x (quantization axis) and mode 1 polarized along x: mode 1
-// drives only the π transition with Clebsch–Gordan weight 1, a two-level atom in the sense of the
-// closed forms; mode 2 stays empty. All atoms at the origin (antinode, identical couplings).
+// N two-level atoms at one antinode (tests/support/scenario_text.h), mode 1 detuned from the atom
+// by resonator_detuning_MHz (the drive stays on the atom).
 std::string config(const Setup& s) {
-  std::string pos;
-  for (int k = 0; k < s.atoms; ++k) pos += std::string(k ? ", " : "") + "[0, 0, 0]";
-  return R"(
-[atom]
-species = "custom"
-ground_F = 0
-excited_F = 1
-gamma_MHz = )" + num(gamma_MHz(s)) + R"(
-wavelength_nm = 780.0
-ground_gF = 0.0
-excited_gF = 0.5
-[field]
-B_G = [0.1, 0, 0]
-[resonator]
-length_mm = 0.25
-waist_um = 25.0
-kappa_MHz = )" + num(kappa_MHz(s)) + R"(
-g0_MHz = )" + num(kG0MHz) + R"(
-detuning_MHz = )" + num(s.resonator_detuning_MHz) + R"(
-output_mirror_fraction = 0.7
-fock_cutoff_count = 2
-[[drive]]
-name = "probe"
-kind = "resonator"
-mode_index = 1
-detuning_MHz = 0
-empty_mean_photons_count = )" + num(s.empty_photons) + R"(
-[[channel]]
-name = "H"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 0
-efficiency_fraction = 0.6
-[source]
-kind = "stationary"
-positions_um = [)" + pos + R"(]
-[[population]]
-ground_F = 0
-m_F = 0
-probability_fraction = 1.0
-[run]
-duration_s = )" + num(s.duration_s) + "\nseed_id = " + std::to_string(s.seed) + "\n" + s.run_extra;
+  flyby::test::AntinodeScenario o;
+  o.seed = s.seed;
+  o.atoms_count = s.atoms;
+  o.duration_s = s.duration_s;
+  o.gamma_MHz = gamma_MHz(s);
+  o.kappa_MHz = kappa_MHz(s);
+  o.g0_MHz = kG0MHz;
+  o.empty_photons = s.empty_photons;
+  o.resonator_lines = "detuning_MHz = " + num(s.resonator_detuning_MHz) + "\nfock_cutoff_count = 2\n";
+  o.run_lines = s.run_extra;
+  return flyby::test::antinode_scenario_text(o);
 }
 
 flyby::config::CheckedScenario scenario(const Setup& s) {
@@ -308,20 +277,7 @@ TEST_CASE("eliminated modes end to end: flyby simulate transmission of 2 atoms",
   CHECK(json.at("eliminated_clusters_count").get<int>() == 1);
   CHECK(json.at("elimination_validity_ratio").get<double>() == Approx(*sum.elimination_ratio_max));
   const auto rec = flyby::records::read_record(o.output_path);
-  const int batches = 50;
-  std::vector<double> k(batches, 0.0);
-  const double D_ps = st.duration_s * 1e12;
-  for (std::size_t i = 0; i < rec.tags.size(); ++i)
-    k[std::min<std::size_t>(batches - 1, std::size_t(double(rec.tags.time_ps[i]) / D_ps * batches))] += 1.0;
-  double m = 0, s2 = 0;
-  for (int i = 0; i < batches; ++i) {  // Welford
-    const double dx = k[std::size_t(i)] - m;
-    m += dx / (i + 1);
-    s2 += dx * (k[std::size_t(i)] - m);
-  }
-  s2 /= batches - 1;
-  const double batch_us = st.duration_s * 1e6 / batches;
-  const double rate = m / batch_us, err = std::sqrt(s2 / batches) / batch_us;
+  const auto [rate, err] = flyby::test::batch_rate(rec.tags.time_ps, st.duration_s);
   const double kappa = 2 * M_PI * kappa_MHz(st);
   const double expect = 2 * kappa * kMirror * kEfficiency * st.empty_photons * closed_transmission(2);
   INFO("rate " << rate << " +- " << err << " /us, closed form " << expect);
