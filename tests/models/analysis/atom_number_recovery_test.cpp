@@ -58,13 +58,7 @@ Recovered simulate_and_analyze(const ScratchDir& d, std::uint64_t seed, double n
   const auto path = (d / (name + ".h5")).string();
   const auto sum = flyby::test::simulate_text(config(seed, flux_per_s, duration_s), name, path, 0);
   REQUIRE(sum.ok);
-  flyby::analysis::RecordAnalysisOptions o;
-  o.bin_width_ns = 500;
-  o.range_ns = 40000;
-  o.tau_min_ns = 400;  // single-atom antibunching (≈ 1/Γ) left out: g2_1 = 1 beyond it
-  o.model = "level+transit_gauss";
-  o.threads = 1;
-  const auto a = flyby::analysis::analyze_record(path, o);
+  const auto a = flyby::analysis::analyze_record(path, flyby::test::beam_analysis_options());
   std::filesystem::remove(path);
   REQUIRE(a.atoms_effective);
   REQUIRE(std::isfinite(a.atoms_effective->value));

@@ -78,16 +78,6 @@ std::string beam_config(std::uint64_t seed, double duration_s) {
   return flyby::test::beam_scenario_text(o);
 }
 
-flyby::analysis::RecordAnalysisOptions beam_options() {
-  flyby::analysis::RecordAnalysisOptions o;
-  o.bin_width_ns = 500;
-  o.range_ns = 40000;
-  o.tau_min_ns = 400;  // single-atom antibunching (≈ 1/Γ) left out: g2_1 = 1 beyond it
-  o.model = "level+transit_gauss";
-  o.threads = 1;
-  return o;
-}
-
 std::string simulate(const ScratchDir& d, const std::string& name, const std::string& text) {
   const auto path = (d / (name + ".h5")).string();
   REQUIRE(flyby::test::simulate_text(text, name, path).ok);
@@ -185,7 +175,7 @@ TEST_CASE("analysis of simulated beam runs recovers the mean atom number and tra
   int covered = 0;
   for (int k = 0; k < runs; ++k) {
     const auto path = simulate(d, "beam" + std::to_string(k), beam_config(seed + 1000 * k, 0.003));
-    const auto a = flyby::analysis::analyze_record(path, beam_options());
+    const auto a = flyby::analysis::analyze_record(path, flyby::test::beam_analysis_options());
     REQUIRE(a.atoms_effective);
     REQUIRE(a.transit_us);
     REQUIRE(std::isfinite(a.atoms_effective->value));
