@@ -9,6 +9,8 @@
 #include <cstdint>
 #include <string>
 
+#include "tests/support/scenario_fragments.h"
+
 namespace flyby::test {
 
 inline std::string block_driver_config(std::uint64_t seed) {
@@ -19,40 +21,14 @@ ground_F = 2
 excited_F = 3
 [field]
 B_G = [0, 0, 3.0]
-[resonator]
-length_mm = 0.25
-waist_um = 25.0
-kappa_MHz = 3.0
-output_mirror_fraction = 0.7
-fock_cutoff_count = 2
-[[drive]]
-name = "probe"
-kind = "resonator"
-mode_index = 1
-empty_mean_photons_count = 0.05
-[[channel]]
-name = "H"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 0
-efficiency_fraction = 0.6
-dead_time_ns = 40
+)" + probed_resonator_text({3.0, 0.05, "fock_cutoff_count = 2\n"}) +
+         pbs_channel_text("H", 0, R"(dead_time_ns = 40
 jitter_fwhm_ps = 400
 dark_rate_per_s = 2000
 afterpulse_fraction = 0.2
 afterpulse_delay_ns = 30
 afterpulse_time_constant_ns = 50
-[[channel]]
-name = "V"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 90
-efficiency_fraction = 0.6
-dead_time_ns = 40
-dark_rate_per_s = 2000
-[source]
+)") + pbs_channel_text("V", 90, "dead_time_ns = 40\ndark_rate_per_s = 2000\n") + R"([source]
 kind = "beam"
 speed_distribution = "gaussian"
 speed_m_per_s = 12.0

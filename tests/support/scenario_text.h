@@ -14,21 +14,9 @@
 #include "models/analysis/record_analysis.h"
 #include "models/config/scenario_config.h"
 #include "models/simulation/simulation.h"
+#include "tests/support/scenario_fragments.h"
 
 namespace flyby::test {
-
-// TOML number: shortest text that reads back to the same double (std::to_string would cut
-// 1e-7 to "0.000000").
-inline std::string toml_number(double x) {
-  std::ostringstream s;
-  s.precision(17);
-  s << x;
-  const std::string t = s.str();
-  return (t.find_first_of(".eE") == std::string::npos && t.find("inf") == std::string::npos &&
-          t.find("nan") == std::string::npos)
-             ? t + ".0"
-             : t;
-}
 
 // A stationary 87Rb atom, F = 1 → F′ = 0, B along lab x, driven along z with linear polarization
 // (x̂ + ŷ)/√2 (π and σ± with respect to B, so no dark state survives the Larmor precession). The
@@ -179,26 +167,8 @@ ground_gF = 0.0
 excited_gF = 0.5
 [field]
 B_G = [0.1, 0, 0]
-[resonator]
-length_mm = 0.25
-waist_um = 25.0
-kappa_MHz = )" + toml_number(o.kappa_MHz) + R"(
-g0_MHz = )" + toml_number(o.g0_MHz) + R"(
-output_mirror_fraction = 0.7
-)" + o.resonator_lines + R"(
-[[drive]]
-name = "probe"
-kind = "resonator"
-mode_index = 1
-empty_mean_photons_count = )" + toml_number(o.empty_photons) + R"(
-[[channel]]
-name = "H"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 0
-efficiency_fraction = 0.6
-[source]
+)" + probed_resonator_text({o.kappa_MHz, o.empty_photons, "g0_MHz = " + toml_number(o.g0_MHz) + "\n" + o.resonator_lines}) +
+         pbs_channel_text("H", 0) + R"([source]
 kind = "stationary"
 positions_um = [)" + pos + R"(]
 [run]

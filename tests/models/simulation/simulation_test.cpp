@@ -41,32 +41,8 @@ ground_F = 2
 excited_F = 3
 [field]
 B_G = [0, 0, 3.0]
-[resonator]
-length_mm = 0.25
-waist_um = 25.0
-kappa_MHz = 3.0
-output_mirror_fraction = 0.7
-fock_cutoff_count = 3
-[[drive]]
-name = "probe"
-kind = "resonator"
-mode_index = 1
-empty_mean_photons_count = 0.02
-[[channel]]
-name = "H"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 0
-efficiency_fraction = 0.6
-[[channel]]
-name = "V"
-source = "resonator"
-analyzer = "pbs"
-polarization = "linear"
-polarization_angle_deg = 90
-efficiency_fraction = 0.6
-[run]
+)" + flyby::test::probed_resonator_text({3.0, 0.02, "fock_cutoff_count = 3\n"}) +
+         flyby::test::pbs_channel_text("H", 0) + flyby::test::pbs_channel_text("V", 90) + R"([run]
 duration_s = )" + std::to_string(duration_s) + "\nseed_id = " + std::to_string(seed) + "\n" + source;
 }
 
