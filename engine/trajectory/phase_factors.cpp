@@ -304,9 +304,10 @@ void phase_factors(const double* re, const double* im, double tau, const std::co
   phase_factors_sse2(re, im, tau, c, out, n);
 }
 
+// Four lanes pay from four eigenvalues (or rows) on; below, half of each vector would be padding.
 void phase_factors(const double* re, const double* im, double tau, const std::complex<double>* c,
                    std::complex<double>* out, long n) {
-  phase_factors(re, im, tau, c, out, n, LaneWidth::kWide);
+  phase_factors(re, im, tau, c, out, n, n >= 4 ? LaneWidth::kWide : LaneWidth::kTwo);
 }
 
 std::vector<double> dense_lanes(const std::complex<double>* column_major, long n) {
@@ -338,7 +339,7 @@ void dense_apply(const double* lanes, long n, const std::complex<double>* x, std
 
 void dense_apply(const double* lanes, long n, const std::complex<double>* x, std::complex<double>* y,
                  std::vector<double>& scratch) {
-  dense_apply(lanes, n, x, y, scratch, LaneWidth::kWide);
+  dense_apply(lanes, n, x, y, scratch, n >= 4 ? LaneWidth::kWide : LaneWidth::kTwo);
 }
 
 }  // namespace flyby::trajectory

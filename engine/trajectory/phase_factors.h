@@ -23,8 +23,9 @@ enum class LaneWidth { kTwo, kWide };
 bool wide_lanes_available();
 
 // out_k = c_k · e^{im_k τ} (cos(re_k τ) − i sin(re_k τ)) for k < n, i.e. c_k e^{−iλ_k τ} with
-// λ_k = re_k + i im_k. `re`, `im` of length n; out may alias c. The first form uses the widest
-// kernel the CPU has; the second asks for one (kWide falls back to two lanes without AVX2).
+// λ_k = re_k + i im_k. `re`, `im` of length n; out may alias c. The first form uses four lanes
+// when the CPU has them and n ≥ 4; the second asks for a width (kWide falls back to two lanes
+// without AVX2).
 void phase_factors(const double* re, const double* im, double tau, const std::complex<double>* c,
                    std::complex<double>* out, long n);
 void phase_factors(const double* re, const double* im, double tau, const std::complex<double>* c,
