@@ -79,7 +79,9 @@ FLYBY_LANES_INLINE V splat(typename std::remove_reference_t<decltype(V{}[0])> v)
 template <int kOdd, class L>
 FLYBY_LANES_INLINE L series_in_z(const L& z, const L& z2, const L& z4) {
   // Σ_{m=0}^{7} (−1)^m z^m / (2m + kOdd)!, with kOdd = 3 (sine) or 4 (cosine).
-  auto a = [](int m) { return splat<L>((m % 2 ? -1.0 : 1.0) * inv_factorial(2 * m + kOdd)); };
+  // Scalar coefficients (a vector-returning lambda would not be always inlined), broadcast by the
+  // vector–scalar operators.
+  auto a = [](int m) { return (m % 2 ? -1.0 : 1.0) * inv_factorial(2 * m + kOdd); };
   const L b0 = a(0) + a(1) * z, b1 = a(2) + a(3) * z, b2 = a(4) + a(5) * z, b3 = a(6) + a(7) * z;
   const L c0 = b0 + b1 * z2, c1 = b2 + b3 * z2;
   return c0 + c1 * z4;
@@ -95,7 +97,7 @@ FLYBY_LANES_INLINE void sincos_kernel(const L& r, L& s, L& c) {
 // e^r for |r| ≤ ln2/2 + ε: Taylor series to r¹³ (remainder < 1e-17 relative), Estrin's scheme.
 template <class L>
 FLYBY_LANES_INLINE L exp_kernel(const L& r) {
-  auto a = [](int k) { return splat<L>(inv_factorial(k)); };
+  auto a = [](int k) { return inv_factorial(k); };
   const L r2 = r * r, r4 = r2 * r2, r8 = r4 * r4;
   const L b0 = a(0) + a(1) * r, b1 = a(2) + a(3) * r, b2 = a(4) + a(5) * r, b3 = a(6) + a(7) * r;
   const L b4 = a(8) + a(9) * r, b5 = a(10) + a(11) * r, b6 = a(12) + a(13) * r;
