@@ -93,9 +93,20 @@ struct Stretch {
   std::vector<std::pair<SubsystemId, int>> modes;  // (mode id, index of its top Fock state)
   bool exact = false;
   Eigen::MatrixXcd v, v_inv;
-  // V row by row as [Re, Im, −Im, Re] per entry, for the two-lane product V·x of every
-  // evaluation (dense_apply).
+  // When Σ C†C is diagonal with real entries (atoms decaying by Γ Σ_q A_q†A_q = Γ·P_e, modes by
+  // 2κ a†a): the rates d_i > 0 and, for those rows only, row i of R0 = −i H_eff (compressed rows,
+  // [Re, Im] per entry), so an evaluation gets ⟨ψ|Σ C†C|ψ⟩ = Σ d_i|ψ_i|² and its derivative
+  // 2 Re Σ d_i ψ_i* (R0 ψ)_i without general sparse products. Empty otherwise.
+  struct DiagonalDecay {
+    std::vector<int> row;         // states with d_i > 0
+    std::vector<double> rate;     // d_i
+    std::vector<int> start, col;  // R0 entries of those rows
+    std::vector<double> val;      // re, im per entry
+  };
+  std::optional<DiagonalDecay> diagonal_decay;
+  // V in the lane layout of dense_apply (phase_factors.h), for the product V·x of every evaluation.
   std::vector<double> v_lanes;
+  std::vector<double> v_inv_lanes;  // V⁻¹ the same way, for the coefficients V⁻¹ψ0 of each leg
   Eigen::VectorXcd lambda;
   std::shared_ptr<const ExcitationLeak> leak;  // set when the layout is excitation-restricted
   Eigen::VectorXd lambda_re, lambda_im;  // Re λ, Im λ (≤ 0) of the eigenvalues of H_eff
@@ -193,6 +204,32 @@ struct Run {
   Summary summary;
   bool fock_warned = false;
   double last_wait_us = 0;  // previous exact waiting time: the first bracket guess
+  // First guess of an exact leg's waiting time: a least-squares line τ ≈ α + β·h(0) through the
+  // earlier (h(0) = ln(‖ψ0‖²/r), τ) pairs of this trajectory, weights decaying by kWaitFitDecay
+  // per jump. For a driven atom that starts each wait in the ground state, τ is close to linear
+  // in h(0) (a lag plus h(0)/rate), so the guess is within ≈ 10 % where the previous waiting time
+  // is off by ≈ 60 % (docs/performance.md): one or two evaluations fewer per jump. Only a guess:
+  // the bracketed iteration below decides the root.
+  static constexpr double kWaitFitDecay = 0.98;
+  double fit_w = 0, fit_x = 0, fit_y = 0, fit_xx = 0, fit_xy = 0;
+  void add_wait(double h0, double tau) {
+    fit_w = kWaitFitDecay * fit_w + 1;
+    fit_x = kWaitFitDecay * fit_x + h0;
+    fit_y = kWaitFitDecay * fit_y + tau;
+    fit_xx = kWaitFitDecay * fit_xx + h0 * h0;
+    fit_xy = kWaitFitDecay * fit_xy + h0 * tau;
+  }
+  // The fitted waiting time for h(0) = h0, or nothing before three jumps or when the h(0) seen so
+  // far are too alike to give a slope.
+  std::optional<double> fitted_wait(double h0) const {
+    if (fit_w < 2.5) return std::nullopt;
+    const double mx = fit_x / fit_w, my = fit_y / fit_w;
+    const double vx = fit_xx / fit_w - mx * mx;
+    if (!(vx > 1e-3 * mx * mx)) return std::nullopt;
+    const double tau = my + (fit_xy / fit_w - mx * my) / vx * (h0 - mx);
+    if (!(tau > 0) || !std::isfinite(tau)) return std::nullopt;
+    return tau;
+  }
   double last_step_us = 0;  // step the adaptive controller proposed last: the next stretch starts there
 
   void monitor(const Stretch& s, const Vector& psi) {
@@ -356,6 +393,56 @@ std::vector<const operators::TimeFunction*> stretch_time_functions(const Model& 
   return fns;
 }
 
+// y = M·x for a compressed-row complex sparse matrix, row by row with the entries in stored
+// order, in real arithmetic: the same sums as Eigen's product for finite numbers, without its
+// per-product NaN checks of std::complex and the zero fill of the result (these products of the
+// channel operators after each jump took a sixth of the time of small atoms).
+static_assert(SparseMatrix::IsRowMajor, "sparse_apply walks rows");
+void sparse_apply(const SparseMatrix& m, const Vector& x, Vector& y) {
+  y.resize(m.rows());
+  const int* start = m.outerIndexPtr();
+  const int* nnz = m.innerNonZeroPtr();  // null when compressed
+  const int* col = m.innerIndexPtr();
+  const Complex* val = m.valuePtr();
+  const Complex* xp = x.data();
+  for (long i = 0; i < m.rows(); ++i) {
+    double re = 0, im = 0;
+    const int end = nnz ? start[i] + nnz[i] : start[i + 1];
+    for (int k = start[i]; k < end; ++k) {
+      const double vr = val[k].real(), vi = val[k].imag();
+      const double xr = xp[col[k]].real(), xi = xp[col[k]].imag();
+      re += vr * xr - vi * xi;
+      im += vr * xi + vi * xr;
+    }
+    y[i] = Complex(re, im);
+  }
+}
+
+// Stretch::DiagonalDecay of a decay matrix, or nothing when it has an off-diagonal or a complex
+// entry.
+std::optional<Stretch::DiagonalDecay> diagonal_decay(const SparseMatrix& decay, const SparseMatrix& rhs) {
+  Stretch::DiagonalDecay d;
+  d.start.push_back(0);
+  for (long i = 0; i < decay.outerSize(); ++i) {
+    double rate = 0;
+    for (SparseMatrix::InnerIterator it(decay, i); it; ++it) {
+      if (it.value() == Complex(0.0)) continue;
+      if (it.col() != i || it.value().imag() != 0.0 || !(it.value().real() > 0)) return std::nullopt;
+      rate = it.value().real();
+    }
+    if (rate == 0) continue;
+    d.row.push_back(int(i));
+    d.rate.push_back(rate);
+    for (SparseMatrix::InnerIterator it(rhs, i); it; ++it) {
+      d.col.push_back(int(it.col()));
+      d.val.push_back(it.value().real());
+      d.val.push_back(it.value().imag());
+    }
+    d.start.push_back(int(d.col.size()));
+  }
+  return d;
+}
+
 std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const std::vector<SubsystemId>& present,
                                        const std::vector<Complex>& controls, double t_us, Summary& summary) {
   auto s = std::make_shared<Stretch>();
@@ -490,17 +577,11 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
       s->lambda_scale = s->lambda.cwiseAbs().maxCoeff();
       Eigen::PartialPivLU<Eigen::MatrixXcd> lu(s->v);
       s->v_inv = lu.inverse();
-      s->v_lanes.resize(4 * std::size_t(n * n));
-      for (long i = 0; i < n; ++i)
-        for (long j = 0; j < n; ++j) {
-          double* e = s->v_lanes.data() + 4 * (i * n + j);
-          e[0] = s->v(i, j).real();
-          e[1] = s->v(i, j).imag();
-          e[2] = -s->v(i, j).imag();
-          e[3] = s->v(i, j).real();
-        }
+      s->v_lanes = dense_lanes(s->v.data(), n);
+      s->v_inv_lanes = dense_lanes(s->v_inv.data(), n);
       const double cond = s->v.norm() * s->v_inv.norm() / double(n);
       s->exact = std::isfinite(cond) && cond <= opt.max_eigenvector_condition;
+      s->diagonal_decay = diagonal_decay(s->decay, s->rhs_const);
     }
   }
   return s;
@@ -517,34 +598,6 @@ struct Tolerance {
   bool operator()(double a, double b) const { return std::abs(b - a) <= tol; }
 };
 
-// y = V·x for the exact propagator (Stretch::v_lanes): row i is Σ_j [Re V, Im V]·Re x_j +
-// [−Im V, Re V]·Im x_j in two-lane vectors, with the broadcast [Re x_j, Re x_j, Im x_j, Im x_j]
-// formed once per call in `xl`; a fixed order of lane-wise operations (machine independent).
-// Replaces Eigen's complex matrix–vector product, a quarter of the time of small atoms.
-void dense_apply(const double* vl, long n, const Complex* x, Complex* y, std::vector<double>& xl) {
-  using Lanes = double __attribute__((vector_size(16)));
-  xl.resize(4 * std::size_t(n));
-  for (long j = 0; j < n; ++j) {
-    xl[std::size_t(4 * j)] = xl[std::size_t(4 * j + 1)] = x[j].real();
-    xl[std::size_t(4 * j + 2)] = xl[std::size_t(4 * j + 3)] = x[j].imag();
-  }
-  auto load = [](const double* p) {
-    Lanes v;
-    std::memcpy(&v, p, sizeof v);
-    return v;
-  };
-  for (long i = 0; i < n; ++i) {
-    const double* row = vl + 4 * i * n;
-    Lanes a = {0, 0}, b = {0, 0};
-    for (long j = 0; j < n; ++j) {
-      a += load(row + 4 * j) * load(xl.data() + 4 * j);
-      b += load(row + 4 * j + 2) * load(xl.data() + 4 * j + 2);
-    }
-    a += b;
-    y[i] = Complex(a[0], a[1]);
-  }
-}
-
 Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t1, double r) {
   Leg leg;
   const double total = t1 - t0;
@@ -560,34 +613,68 @@ Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t
   w.x.resize(n);
   w.tmp.resize(n);
   w.dtmp.resize(n);
-  w.coef.noalias() = s.v_inv * psi;
+  dense_apply(s.v_inv_lanes.data(), n, psi.data(), w.coef.data(), w.xlanes);
   const double logr = std::log(r);
-  // h(τ) = ln‖ψ(τ)‖² − ln r is decreasing, with h′(τ) = −⟨ψ|Σ C†C|ψ⟩/‖ψ‖² exact from ψ(τ). For a
-  // constant decay rate h is linear, so Newton's method on h converges in one or two steps.
+  // h(τ) = ln‖ψ(τ)‖² − ln r is decreasing, with h′(τ) = −P/‖ψ‖², P = ⟨ψ|Σ C†C|ψ⟩, exact from
+  // ψ(τ), and h″ = −P′/‖ψ‖² − h′² with P′ = 2 Re⟨Σ C†C ψ|ψ′⟩, ψ′ = −i H_eff ψ: one sparse
+  // product (only the decaying rows when Σ C†C is diagonal), no further exponential. For a
+  // constant decay rate h is linear and the iteration converges in one or two steps.
   double nn = 0;
-  auto eval = [&](double tau, double& h, double& hp) {
+  auto eval = [&](double tau, double& h, double& hp, double& hpp) {
     // e^{−iλτ} = e^{Im λ·τ} (cos(Re λ·τ) − i sin(Re λ·τ)), two eigenvalues at a time.
     phase_factors(s.lambda_re.data(), s.lambda_im.data(), tau, w.coef.data(), w.x.data(), n);
     dense_apply(s.v_lanes.data(), n, w.x.data(), w.tmp.data(), w.xlanes);
     ++run.summary.exponential_evaluations;
     run.monitor(s, w.tmp);
-    nn = w.tmp.squaredNorm();
-    w.dtmp.noalias() = s.decay * w.tmp;
+    double p = 0, pp = 0;  // P and P′
+    if (s.diagonal_decay) {
+      const Stretch::DiagonalDecay& d = *s.diagonal_decay;
+      const double* y = reinterpret_cast<const double*>(w.tmp.data());
+      nn = 0;
+      for (long i = 0; i < n; ++i) nn += y[2 * i] * y[2 * i] + y[2 * i + 1] * y[2 * i + 1];
+      for (std::size_t k = 0; k < d.row.size(); ++k) {
+        const long i = d.row[k];
+        double ar = 0, ai = 0;  // (R0 ψ)_i
+        for (int e = d.start[k]; e < d.start[k + 1]; ++e) {
+          const double vr = d.val[std::size_t(2 * e)], vi = d.val[std::size_t(2 * e + 1)];
+          const double xr = y[2 * d.col[std::size_t(e)]], xi = y[2 * d.col[std::size_t(e)] + 1];
+          ar += vr * xr - vi * xi;
+          ai += vr * xi + vi * xr;
+        }
+        const double yr = y[2 * i], yi = y[2 * i + 1];
+        p += d.rate[k] * (yr * yr + yi * yi);
+        pp += d.rate[k] * (yr * ar + yi * ai);
+      }
+      pp *= 2;
+    } else {
+      nn = w.tmp.squaredNorm();
+      sparse_apply(s.decay, w.tmp, w.dtmp);
+      sparse_apply(s.rhs_const, w.tmp, w.x);  // ψ′ (x is free again)
+      p = w.tmp.dot(w.dtmp).real();
+      pp = 2 * w.dtmp.dot(w.x).real();
+    }
     h = std::log(nn) - logr;
-    hp = -w.tmp.dot(w.dtmp).real() / nn;
+    hp = -p / nn;
+    hpp = -pp / nn - hp * hp;
   };
   const double tol = run.options->jump_time_tolerance_us;
-  // Bracket [a, b] with h(a) > 0 ≥ h(b) (b unknown until found); safeguarded Newton: a step
-  // outside the bracket is replaced by bisection, and before b is known by doubling.
+  // Bracket [a, b] with h(a) > 0 ≥ h(b) (b unknown until found); safeguarded Halley iteration: a
+  // step outside the bracket is replaced by bisection, and before b is known by doubling. The
+  // first guess is the fitted waiting time (Run::fitted_wait), else Newton's step from τ = 0 or
+  // the previous waiting time.
   double a = 0;
   std::optional<double> b;
-  w.dtmp.noalias() = s.decay * psi;
+  sparse_apply(s.decay, psi, w.dtmp);
   const double ha0 = std::log(n0) - logr, hpa0 = -psi.dot(w.dtmp).real() / n0;
-  double tau = hpa0 < 0 ? -ha0 / hpa0 : (run.last_wait_us > 0 ? run.last_wait_us : (s.lambda_scale > 0 ? 1.0 / s.lambda_scale : total));
+  double tau = 0;
+  if (const auto fit = run.fitted_wait(ha0))
+    tau = *fit;
+  else
+    tau = hpa0 < 0 ? -ha0 / hpa0 : (run.last_wait_us > 0 ? run.last_wait_us : (s.lambda_scale > 0 ? 1.0 / s.lambda_scale : total));
   tau = std::min(std::max(tau, tol), total);
   for (int it = 0;; ++it) {
-    double h = 0, hp = 0;
-    eval(tau, h, hp);
+    double h = 0, hp = 0, hpp = 0;
+    eval(tau, h, hp, hpp);
     if (!std::isfinite(nn)) {
       leg.failed = true;
       return leg;
@@ -601,20 +688,28 @@ Leg propagate_exact(const Stretch& s, Run& run, Vector& psi, double t0, double t
     } else {
       b = tau;
     }
-    const double newton = (std::isfinite(h) && hp < 0) ? tau - h / hp : std::nan("");
+    // Halley step τ − 2hh′/(2h′² − hh″) (cubic convergence) when its denominator is safely
+    // positive (the step at most twice Newton's), else Newton's τ − h/h′ (evaluations per jump:
+    // docs/performance.md).
+    double step_to = std::nan("");
+    if (std::isfinite(h) && hp < 0) {
+      const double den = 2 * hp * hp - h * hpp;
+      step_to = (std::isfinite(den) && den > hp * hp) ? tau - 2 * h * hp / den : tau - h / hp;
+    }
     double next;
     if (b) {
-      next = (newton > a && newton < *b) ? newton : 0.5 * (a + *b);
+      next = (step_to > a && step_to < *b) ? step_to : 0.5 * (a + *b);
       if (*b - a <= tol) break;
     } else {
-      next = newton > tau ? std::min(newton, total) : std::min(2 * tau, total);
+      next = step_to > tau ? std::min(step_to, total) : std::min(2 * tau, total);
     }
-    if ((std::isfinite(newton) && std::abs(newton - tau) <= 0.5 * tol) || it >= 200) break;
+    if ((std::isfinite(step_to) && std::abs(step_to - tau) <= 0.5 * tol) || it >= 200) break;
     tau = next;
   }
   psi = w.tmp;
   leg.jump_us = t0 + tau;
   run.last_wait_us = tau;
+  run.add_wait(ha0, tau);
   run.summary.norm_error_estimate = std::max(run.summary.norm_error_estimate, std::abs(nn - r) / r);
   return leg;
 }
@@ -1020,7 +1115,7 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
       double total = 0;
       for (std::size_t k = 0; k < w.size(); ++k) {
         cpsi[k].resize(psi.size());
-        cpsi[k].noalias() = s.channel_ops[k] * psi;
+        sparse_apply(s.channel_ops[k], psi, cpsi[k]);
       }
       for (const auto& tc : s.timed_channels)
         for (std::size_t g = 0; g < tc.parts.size(); ++g) {

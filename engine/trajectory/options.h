@@ -20,8 +20,11 @@ struct Options {
   // Largest adaptive step, µs; unset = unlimited. Set it below the shortest feature of the time
   // functions (e.g. a pulse) that the integrator could otherwise step over.
   std::optional<double> max_step_us;
-  // The jump time is located by bracketed root finding (TOMS 748) on ‖ψ(t)‖² − r until the
-  // bracket is shorter than this, µs, > 0. Default 1e-7 µs = 0.1 ps, below a tagger's resolution.
+  // The jump time is located by bracketed root finding on ‖ψ(t)‖² = r to this accuracy, µs, > 0:
+  // TOMS 748 on the dense output until the bracket is shorter than this (adaptive stretches), a
+  // safeguarded Halley iteration on ln‖ψ‖² until its correction is below half of it or the
+  // bracket shorter than it (exact stretches). Default 1e-7 µs = 0.1 ps, below a tagger's
+  // resolution.
   double jump_time_tolerance_us = 1e-7;
   // Time-independent stretches use the exact exponential from an eigendecomposition of H_eff
   // when the eigenvector matrix has condition number ≤ this (near an exceptional point it does

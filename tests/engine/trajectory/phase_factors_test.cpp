@@ -5,6 +5,7 @@
 #include <catch2/catch.hpp>
 #include <cmath>
 #include <complex>
+#include <cstring>
 #include <limits>
 #include <vector>
 
@@ -72,6 +73,70 @@ TEST_CASE("phase factors c e^{-i lambda tau} match complex arithmetic", "[integr
       INFO("n " << n << " k " << k);
       REQUIRE(std::isfinite(out[k].real()));
       CHECK(std::abs(out[k] - ref) <= 1e-14 * std::max(1e-300, std::abs(ref)) + 1e-300);
+    }
+  }
+}
+
+TEST_CASE("four-lane phase factors give the bits of the two-lane path", "[integrator]") {
+  // Reproducibility rule of the project (DESIGN.md §4): results must not depend on the CPU, so the
+  // AVX2 kernel chosen at run time must reproduce the SSE2 kernel bit for bit, including lanes
+  // that fall back to libm next to lanes that do not.
+  if (!trajectory::wide_lanes_available()) {
+    WARN("this CPU has no AVX2: only the two-lane path exists here, nothing to compare");
+    return;
+  }
+  const std::uint64_t seed = test::seed("phase factors lanes");
+  auto rng = make_stream(seed, StreamPurpose::kTest, 2);
+  long compared = 0;
+  for (int trial = 0; trial < 20000; ++trial) {
+    const long n = 1 + long(uniform_open0(rng) * 13.0);
+    std::vector<double> re(n), im(n);
+    std::vector<std::complex<double>> c(n), two(n), wide(n);
+    for (long k = 0; k < n; ++k) {
+      const double u = uniform_open0(rng);
+      // Mostly the fast ranges, sometimes beyond them (|Re λ τ| > 1e5, Im λ τ < −700).
+      re[k] = (u < 0.05 ? 1e6 : 40.0) * (uniform_open0(rng) - 0.5);
+      im[k] = (u > 0.95 ? -1e3 : -3.0) * uniform_open0(rng);
+      c[k] = {uniform_open0(rng) - 0.5, uniform_open0(rng) - 0.5};
+    }
+    const double tau = 2.5 * uniform_open0(rng);
+    trajectory::phase_factors(re.data(), im.data(), tau, c.data(), two.data(), n, trajectory::LaneWidth::kTwo);
+    trajectory::phase_factors(re.data(), im.data(), tau, c.data(), wide.data(), n, trajectory::LaneWidth::kWide);
+    for (long k = 0; k < n; ++k, ++compared) {
+      INFO("trial " << trial << " n " << n << " k " << k << " re " << re[k] << " im " << im[k] << " tau " << tau);
+      REQUIRE(std::memcmp(&two[k], &wide[k], sizeof two[k]) == 0);
+    }
+  }
+  CHECK(compared > 100000);
+}
+
+TEST_CASE("dense complex products on the lane layout match complex arithmetic, in both widths", "[integrator]") {
+  const std::uint64_t seed = test::seed("dense lanes");
+  auto rng = make_stream(seed, StreamPurpose::kTest, 3);
+  std::vector<double> scratch;
+  for (long n : {1L, 2L, 3L, 5L, 8L, 11L, 12L, 17L}) {
+    const auto un = static_cast<std::size_t>(n);
+    std::vector<std::complex<double>> a(un * un), x(un), two(un), wide(un);
+    for (auto& v : a) v = {uniform_open0(rng) - 0.5, uniform_open0(rng) - 0.5};
+    for (auto& v : x) v = {uniform_open0(rng) - 0.5, uniform_open0(rng) - 0.5};
+    const std::vector<double> lanes = trajectory::dense_lanes(a.data(), n);  // column-major a
+    trajectory::dense_apply(lanes.data(), n, x.data(), two.data(), scratch, trajectory::LaneWidth::kTwo);
+    trajectory::dense_apply(lanes.data(), n, x.data(), wide.data(), scratch, trajectory::LaneWidth::kWide);
+    for (long i = 0; i < n; ++i) {
+      std::complex<double> ref = 0;
+      double mag = 0;
+      for (long j = 0; j < n; ++j) {
+        ref += a[std::size_t(i + j * n)] * x[std::size_t(j)];
+        mag += std::abs(a[std::size_t(i + j * n)]) * std::abs(x[std::size_t(j)]);
+      }
+      INFO("n " << n << " row " << i);
+      // Rounding bound of a dot product of length n (Higham, Accuracy and Stability of Numerical
+      // Algorithms, 2nd ed., eq. 3.5): |error| ≤ γ_{n+2} Σ|a||x| per component, doubled for complex.
+      const double bound = 2.0 * double(n + 2) * std::numeric_limits<double>::epsilon() * mag;
+      CHECK(std::abs(two[std::size_t(i)] - ref) <= bound);
+      // The four-lane path runs the same operations per lane: the same bits (or the same path
+      // when the CPU has no AVX2).
+      CHECK(std::memcmp(&two[std::size_t(i)], &wide[std::size_t(i)], sizeof two[0]) == 0);
     }
   }
 }
