@@ -7,6 +7,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <random>
 #include <vector>
 
@@ -117,6 +118,82 @@ TEST_CASE("correlator equals a brute-force pair count for any chunking and threa
     // The one-shot form agrees too, and the histogram is not trivially empty in most trials.
     REQUIRE(correlate(d.t, d.ch, o).counts == expect);
     if (o.range_ps >= 50 && !o.herald) REQUIRE(total > 0);
+  }
+}
+
+// The plain walk pairs every tag with the one before it without a branch and takes the general
+// walk only when a second earlier tag is within reach; this test covers the regimes where that
+// matters (few pairs per tag as in a lab, bursts of equal time stamps, gaps right at the bin
+// edges, a missing channel, time stamps near the ends of the int64 axis, bins wide enough for
+// the 64-bit division path) against the brute-force count from the definition.
+TEST_CASE("correlator plain walk equals a brute-force count at lab-like sparsity and at the edges", "[correlator]") {
+  auto rng = flyby::make_stream(flyby::test::seed("correlator sparse walk"), flyby::StreamPurpose::kTest, 2);
+  struct Case {
+    const char* what;
+    std::int64_t W, R;       // bin width, range
+    std::int64_t t0;         // first time stamp
+    std::vector<std::int64_t> gaps;  // gaps drawn from these (equally likely) ...
+    std::int64_t mean_gap;   // ... or, if gaps is empty, exponential with this mean
+    int n_channels;          // channels drawn from 0..n_channels−1
+    int start, stop;
+  };
+  constexpr std::int64_t kMax = std::numeric_limits<std::int64_t>::max();
+  constexpr std::int64_t kMin = std::numeric_limits<std::int64_t>::min();
+  const std::vector<Case> cases = {
+      {"sparse: 0.05 pairs per tag", 100, 1000, 0, {}, 20000, 2, 0, 1},
+      {"sparse: 0.3 pairs per tag", 100, 3000, 0, {}, 10000, 2, 0, 1},
+      {"about one earlier tag in reach", 100, 5000, 0, {}, 5000, 2, 1, 0},
+      {"several earlier tags in reach", 10, 2000, 0, {}, 300, 2, 0, 1},
+      {"autocorrelation, sparse", 100, 2000, 0, {}, 10000, 2, 0, 0},
+      {"third channel counts nothing", 100, 2000, 0, {}, 3000, 3, 2, 0},
+      {"bursts of equal time stamps", 10, 100, 0, {0, 0, 0, 1, 500, 3000}, 0, 2, 0, 1},
+      {"equal time stamps, autocorrelation", 10, 100, 0, {0, 0, 2, 800, 5000}, 0, 2, 1, 1},
+      // W = 10, K = 3: bin edges at ±5, ±15, ±25, outer edge ±35 (35 falls outside), look-back 35.
+      {"gaps at the bin edges, even W", 10, 30, 0, {0, 4, 5, 6, 14, 15, 34, 35, 36, 70, 1000}, 0, 2, 0, 1},
+      // W = 7, K = 2: outer edges at −17.5 and +17.5, look-back 18.
+      {"gaps at the bin edges, odd W", 7, 14, 0, {0, 3, 4, 10, 11, 17, 18, 19, 36, 1000}, 0, 2, 1, 0},
+      {"stop channel never occurs", 100, 2000, 0, {}, 1000, 1, 0, 1},
+      {"start channel never occurs", 100, 2000, 0, {}, 1000, 1, 1, 0},
+      {"time stamps near the lowest int64", 10, 100, kMin, {0, 1, 50, 105, 106, 3000}, 0, 2, 0, 1},
+      {"time stamps near the highest int64", 10, 100, kMax - 20'000'000, {0, 1, 50, 105, 106, 3000}, 0, 2, 0, 1},
+      // 2W(2K+1) > 2^32: bins by 64-bit division.
+      {"bins too wide for the 32-bit reciprocal", 3'000'000'000, 6'000'000'000, 0, {}, 4'000'000'000, 2, 0, 1},
+  };
+  for (const auto& cs : cases) {
+    const std::size_t n = 3000;
+    Tags d;
+    std::uniform_int_distribution<std::size_t> ugap(0, cs.gaps.empty() ? 0 : cs.gaps.size() - 1);
+    std::exponential_distribution<double> ex(1.0);
+    std::uniform_int_distribution<int> uc(0, cs.n_channels - 1);
+    std::int64_t t = cs.t0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const std::int64_t g = cs.gaps.empty() ? static_cast<std::int64_t>(ex(rng) * static_cast<double>(cs.mean_gap))
+                                             : cs.gaps[ugap(rng)];
+      if (i > 0) t += g;
+      d.t.push_back(t);
+      d.ch.push_back(uc(rng));
+    }
+    CorrelatorOptions o;
+    o.start_channel = cs.start;
+    o.stop_channel = cs.stop;
+    o.bin_width_ps = cs.W;
+    o.range_ps = cs.R;
+    o.duration_ps = d.t.back() - d.t.front() + 1;
+    o.min_tags_per_thread = 1;
+    INFO(cs.what);
+    const auto expect = brute_force(d, o);
+    std::uint64_t total = 0;
+    for (auto c : expect) total += c;
+    const bool both_channels = cs.n_channels > std::max(cs.start, cs.stop);
+    if (both_channels) REQUIRE(total > 0);  // the case is not vacuous
+    for (int threads : {1, 2}) {
+      o.threads = threads;
+      for (std::size_t max_chunk : {std::size_t{1}, std::size_t{2}, std::size_t{3}, std::size_t{17}, n}) {
+        const auto r = run_chunked(d, o, rng, max_chunk);
+        REQUIRE(r.counts == expect);
+        if (!both_channels) REQUIRE(r.status != CorrelatorStatus::kSuccess);
+      }
+    }
   }
 }
 
