@@ -295,19 +295,27 @@ template <bool kFast, bool kAuto, bool kSafe, class Ch>
 std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* c, std::size_t a, std::size_t b,
                                                const std::int64_t* tt, const std::uint8_t* tr, std::size_t tn, int cs,
                                                int cp, std::int64_t L, bool dense, const Binner& bin,
-                                               std::uint64_t* h, std::uint64_t trash) {
+                                               std::uint64_t* h, std::uint64_t trash, std::int64_t prev0,
+                                               bool& unsorted) {
   // Role counts in a loop of their own (vectorized), not in the walk's registers.
   std::size_t ns = 0, np = 0;
   for (std::size_t i = a; i < b; ++i) {
     ns += static_cast<std::size_t>(static_cast<int>(c[i]) == cs);
     np += static_cast<std::size_t>(static_cast<int>(c[i]) == cp);
   }
+  // The order check rides along (the loops load t[i] and t[i − 1] anyway); prev0 is the newest
+  // time of the earlier chunks.
+  bool uns = false;
   std::size_t i = a;
-  // The first two tags of the chunk look back into the tail: general walk. So do all tags when
-  // the bins need a 64-bit division (too slow to do for every tag).
-  for (const std::size_t a2 = std::min(b, std::max<std::size_t>(a, 2)); i < a2; ++i)
+  // The first two tags of the chunk look back into the tail: general walk.
+  for (const std::size_t a2 = std::min(b, std::max<std::size_t>(a, 2)); i < a2; ++i) {
+    uns |= t[i] < (i > 0 ? t[i - 1] : prev0);
     walk_back<kFast>(t, c, i, i, role_of(c[i], cs, cp), sat_sub(t[i], L), tt, tr, tn, cs, cp, bin, h, trash);
-  if (i >= b) return {ns, np};
+  }
+  if (i >= b) {
+    unsorted = uns;
+    return {ns, np};
+  }
   if (!kFast || !dense) {  // (the dense loop would need a 64-bit division for every tag)
     for (std::size_t base = i; base < b; base += 64) {
       const std::size_t m = std::min<std::size_t>(64, b - base);
@@ -315,6 +323,7 @@ std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* 
       for (std::size_t j = 0; j < m; ++j) {
         const std::int64_t lim = kSafe ? t[base + j] - L : sat_sub(t[base + j], L);
         near |= static_cast<std::uint64_t>(t[base + j - 1] >= lim) << j;
+        uns |= t[base + j] < t[base + j - 1];
       }
       while (near != 0) {
         const std::size_t k = base + static_cast<std::size_t>(__builtin_ctzll(near));
@@ -323,6 +332,7 @@ std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* 
                          bin, h, trash);
       }
     }
+    unsorted = uns;
     return {ns, np};
   }
   if constexpr (kFast) {
@@ -333,6 +343,7 @@ std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* 
       const unsigned r = role_of(c[i], cs, cp);
       const std::int64_t ti = t[i];
       const std::int64_t lim = kSafe ? ti - L : sat_sub(ti, L);
+      uns |= ti < t_prev;
       const std::int64_t d = std::min(kSafe ? ti - t_prev : sat_sub(ti, t_prev), d_out);
       if constexpr (kAuto) count_pair<true>(r, r_prev, d, bin, h, trash + (i & 7u));
       else count_cross(r, r_prev, d, bin, h, trash + (i & 15u));
@@ -342,6 +353,7 @@ std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* 
       t_prev = ti;
     }
   }
+  unsorted = uns;
   return {ns, np};
 }
 
@@ -358,6 +370,8 @@ void Correlator::walk(const std::int64_t* t, const Ch* c, std::size_t n) {
   const std::uint8_t* tr = tail_role_.data();
   const std::size_t tn = tail_time_.size();
   std::vector<std::pair<std::size_t, std::size_t>> roles(static_cast<std::size_t>(nt));  // per thread
+  std::vector<char> unsorted(static_cast<std::size_t>(nt), 0);
+  const std::int64_t prev0 = last_time_ ? *last_time_ : std::numeric_limits<std::int64_t>::min();
   // No t − L and no difference of two times in the chunk can overflow: plain subtractions.
   std::int64_t span = 0, scratch;
   const bool safe = !__builtin_sub_overflow(t[0], L + 1, &scratch) && !__builtin_sub_overflow(t[n - 1], t[0], &span);
@@ -372,8 +386,10 @@ void Correlator::walk(const std::int64_t* t, const Ch* c, std::size_t n) {
       // before it (read only), so the split does not change the pairs.
       const auto tid = static_cast<std::size_t>(omp_get_thread_num());
       const auto nth = static_cast<std::size_t>(omp_get_num_threads());
+      bool uns = false;
       roles[tid] = walk_range<kF, kA, kS>(t, c, n * tid / nth, n * (tid + 1) / nth, tt, tr, tn, cs, cp, L, dense, bin,
-                                          hist_[tid].data(), 2 * static_cast<std::uint64_t>(half_bins_) + 1);
+                                          hist_[tid].data(), 2 * static_cast<std::uint64_t>(half_bins_) + 1, prev0, uns);
+      unsorted[tid] = uns;
     }
   };
   auto run2 = [&](auto fast, auto autoc) {
@@ -383,6 +399,10 @@ void Correlator::walk(const std::int64_t* t, const Ch* c, std::size_t n) {
   if (!bin.magic) run2(std::false_type{}, std::false_type{});
   else if (autocorr_) run2(std::true_type{}, std::true_type{});
   else run2(std::true_type{}, std::false_type{});
+  if (std::find(unsorted.begin(), unsorted.end(), 1) != unsorted.end()) {
+    failed_ = true;  // the histograms hold part of the bad chunk
+    throw_unsorted(t, n, prev0);
+  }
   std::size_t ns = 0, np = 0;
   for (const auto& [s, p] : roles) {
     ns += s;
@@ -416,9 +436,18 @@ void Correlator::walk(const std::int64_t* t, const Ch* c, std::size_t n) {
   }
 }
 
+void Correlator::throw_unsorted(const std::int64_t* t, std::size_t n, std::int64_t prev) const {
+  for (std::size_t i = 0; i < n; prev = t[i], ++i)
+    if (t[i] < prev)
+      throw InputError("correlator: tags not sorted in time: tag " + std::to_string(n_tags_ + i) + " at " +
+                       std::to_string(t[i]) + " ps follows " + std::to_string(prev) + " ps");
+  throw InputError("correlator: tags not sorted in time");  // not reached: the caller saw a decrease
+}
+
 template <class Ch>
 void Correlator::ingest(std::span<const std::int64_t> time_ps, std::span<const Ch> channel) {
   FLYBY_CHECK(!finished_, "Correlator::add_chunk after finish()");
+  if (failed_) throw InputError("correlator: an earlier chunk was refused (tags not sorted in time)");
   if (time_ps.size() != channel.size())
     throw InputError("correlator: chunk has " + std::to_string(time_ps.size()) + " times but " +
                      std::to_string(channel.size()) + " channels");
@@ -427,22 +456,16 @@ void Correlator::ingest(std::span<const std::int64_t> time_ps, std::span<const C
   const std::int64_t* t = time_ps.data();
   const Ch* c = channel.data();
 
+  if (!conditions_) {
+    walk(t, c, n);  // checks the order on the way
+    return;
+  }
+
   // Order check without branches in the loop; the failing tag is located only on failure.
   const std::int64_t prev0 = last_time_ ? *last_time_ : std::numeric_limits<std::int64_t>::min();
   bool unsorted = t[0] < prev0;
   for (std::size_t i = 1; i < n; ++i) unsorted |= t[i] < t[i - 1];
-  if (unsorted) {
-    std::int64_t prev = prev0;
-    for (std::size_t i = 0; i < n; prev = t[i], ++i)
-      if (t[i] < prev)
-        throw InputError("correlator: tags not sorted in time: tag " + std::to_string(n_tags_ + i) + " at " +
-                         std::to_string(t[i]) + " ps follows " + std::to_string(prev) + " ps");
-  }
-
-  if (!conditions_) {
-    walk(t, c, n);
-    return;
-  }
+  if (unsorted) throw_unsorted(t, n, prev0);
 
   // Split by channel into the lanes: every tag is written to each lane's next slot and the
   // slot advances only if the channel matches (no data-dependent branches).
@@ -610,6 +633,7 @@ void Correlator::trim(std::int64_t t_cut) {
 
 CorrelationHistogram Correlator::finish() {
   FLYBY_CHECK(!finished_, "Correlator::finish() called twice");
+  if (failed_) throw InputError("correlator: an earlier chunk was refused (tags not sorted in time)");
   finished_ = true;
   process(0);
 

@@ -9,6 +9,7 @@
 #include <cmath>
 #include <limits>
 #include <random>
+#include <string>
 #include <vector>
 
 #include "engine/analysis/correlator.h"
@@ -278,6 +279,42 @@ TEST_CASE("correlator refuses bad options and unsorted tags with one-line input 
   const std::vector<int> c1{0, 1}, c2{0};
   c.add_chunk(t1, c1);
   REQUIRE_THROWS_AS(c.add_chunk(t2, c2), flyby::InputError);
+}
+
+// The plain walk checks the order on the way (no pass of its own): a decrease anywhere — the
+// first tag against the previous chunk, inside a thread's share, at the seam between two threads'
+// shares — is refused with the tag named, and the correlator is spent afterwards.
+TEST_CASE("correlator plain walk refuses a decrease anywhere in a chunk and is spent afterwards", "[correlator]") {
+  const std::size_t n = 1000;
+  for (int threads : {1, 2}) {
+    for (std::size_t bad : {std::size_t{0}, std::size_t{1}, std::size_t{2}, std::size_t{77}, n / 2, n - 1}) {
+      CorrelatorOptions o;
+      o.threads = threads;
+      o.min_tags_per_thread = 1;
+      o.bin_width_ps = 10;
+      o.range_ps = 100;
+      Correlator c(o);
+      std::vector<std::int64_t> t0{0, 5};
+      std::vector<int> c0{0, 1};
+      c.add_chunk(t0, c0);
+      std::vector<std::int64_t> t(n);
+      std::vector<int> ch(n);
+      for (std::size_t i = 0; i < n; ++i) {
+        t[i] = 10 + 7 * static_cast<std::int64_t>(i);
+        ch[i] = static_cast<int>(i % 2);
+      }
+      t[bad] = bad == 0 ? 4 : t[bad - 1] - 1;  // earlier than its predecessor
+      INFO("threads " << threads << " bad tag " << bad);
+      try {
+        c.add_chunk(t, ch);
+        FAIL("unsorted chunk accepted");
+      } catch (const flyby::InputError& e) {
+        REQUIRE(std::string(e.what()).find("tag " + std::to_string(2 + bad) + " ") != std::string::npos);
+      }
+      REQUIRE_THROWS_AS(c.add_chunk(t0, c0), flyby::InputError);
+      REQUIRE_THROWS_AS(c.finish(), flyby::InputError);
+    }
+  }
 }
 
 TEST_CASE("correlator reports missing channels as a status, not a crash", "[correlator]") {
