@@ -80,6 +80,13 @@ Correlator::Correlator(CorrelatorOptions options) : opt_(std::move(options)) {
 
 namespace {
 
+// a - b modulo 2^64: the same as a - b whenever that fits, and defined when it does not — the
+// plain walk checks the order on the way, so it may meet an unsorted chunk (refused afterwards)
+// whose differences overflow.
+inline std::int64_t wrap_sub(std::int64_t a, std::int64_t b) {
+  return static_cast<std::int64_t>(static_cast<std::uint64_t>(a) - static_cast<std::uint64_t>(b));
+}
+
 // a - b, clamped to the int64 range (look-back limits near the ends of the time axis).
 inline std::int64_t sat_sub(std::int64_t a, std::int64_t b) {
   std::int64_t r;
@@ -221,8 +228,10 @@ inline unsigned role_of(Ch c, int cs, int cp) {
 template <bool kFast>
 inline void count_pair(unsigned r, unsigned rj, std::int64_t d, const Binner& bin, std::uint64_t* h,
                        std::uint64_t trash) {
-  const auto u1 = static_cast<std::uint64_t>(2 * d + bin.offset);
-  const auto u2 = static_cast<std::uint64_t>(-2 * d + bin.offset);
+  // In unsigned arithmetic (same bits as 2d + offset for the delays of a sorted stream).
+  const auto ud = static_cast<std::uint64_t>(d), off = static_cast<std::uint64_t>(bin.offset);
+  const std::uint64_t u1 = 2 * ud + off;
+  const std::uint64_t u2 = off - 2 * ud;
   // Bitwise, not &&/?: — the compiler turns those into branches on the roles.
   const std::uint64_t ok1 = ((r >> 1) & rj & 1u) & static_cast<std::uint64_t>(u1 < bin.limit);
   const std::uint64_t ok2 = (r & (rj >> 1) & 1u) & static_cast<std::uint64_t>(u2 < bin.limit);
@@ -249,12 +258,12 @@ inline void walk_back(const std::int64_t* t, const Ch* c, std::size_t i, std::si
   std::size_t j = j_from;
   while (j > 0 && t[j - 1] >= lim) {
     --j;
-    count_pair<kFast>(r, role_of(c[j], cs, cp), ti - t[j], bin, h, trash);
+    count_pair<kFast>(r, role_of(c[j], cs, cp), wrap_sub(ti, t[j]), bin, h, trash);
   }
   if (j == 0) {
     for (std::size_t k = tn; k > 0 && tt[k - 1] >= lim;) {
       --k;
-      count_pair<kFast>(r, tr[k], ti - tt[k], bin, h, trash);
+      count_pair<kFast>(r, tr[k], wrap_sub(ti, tt[k]), bin, h, trash);
     }
   }
 }
@@ -266,8 +275,8 @@ inline void count_cross(unsigned r, unsigned rj, std::int64_t d, const Binner& b
                         std::uint64_t trash) {
   const std::uint64_t plus = (r >> 1) & rj & 1u;   // earlier start, later stop: τ = +d
   const std::uint64_t minus = r & (rj >> 1) & 1u;  // earlier stop, later start: τ = −d
-  const std::int64_t m = -static_cast<std::int64_t>(minus);
-  const auto u = static_cast<std::uint64_t>(((2 * d) ^ m) - m + bin.offset);
+  const std::uint64_t m = 0 - minus;  // all ones for τ = −d: conditional negation
+  const std::uint64_t u = ((2 * static_cast<std::uint64_t>(d)) ^ m) - m + static_cast<std::uint64_t>(bin.offset);
   const std::uint64_t ok = (plus | minus) & static_cast<std::uint64_t>(u < bin.limit);
   __extension__ using u128 = unsigned __int128;
   const auto k = static_cast<std::uint64_t>((static_cast<u128>(bin.magic) * u) >> 64);
@@ -289,8 +298,9 @@ inline void count_cross(unsigned r, unsigned rj, std::int64_t d, const Binner& b
 //   of the wrong roles counts into a spare bin), and only a second earlier tag within L takes
 //   the branch into the general walk.
 // Same pairs, same bins either way: only the order of the increments differs, and the counts are
-// integers. kSafe: no time difference in the chunk and no t − L overflows (checked per chunk by
-// the caller), so the saturating subtractions are not needed.
+// integers. kSafe: no time difference in the chunk and no t − L overflows if the chunk is sorted
+// (checked per chunk by the caller), so the saturating subtractions are not needed (wrapping
+// ones keep an unsorted chunk, refused afterwards, free of undefined behaviour).
 template <bool kFast, bool kAuto, bool kSafe, class Ch>
 std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* c, std::size_t a, std::size_t b,
                                                const std::int64_t* tt, const std::uint8_t* tr, std::size_t tn, int cs,
@@ -321,14 +331,14 @@ std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* 
       const std::size_t m = std::min<std::size_t>(64, b - base);
       std::uint64_t near = 0;  // bit j: tag base + j has an earlier tag within L
       for (std::size_t j = 0; j < m; ++j) {
-        const std::int64_t lim = kSafe ? t[base + j] - L : sat_sub(t[base + j], L);
+        const std::int64_t lim = kSafe ? wrap_sub(t[base + j], L) : sat_sub(t[base + j], L);
         near |= static_cast<std::uint64_t>(t[base + j - 1] >= lim) << j;
         uns |= t[base + j] < t[base + j - 1];
       }
       while (near != 0) {
         const std::size_t k = base + static_cast<std::size_t>(__builtin_ctzll(near));
         near &= near - 1;
-        walk_back<kFast>(t, c, k, k, role_of(c[k], cs, cp), kSafe ? t[k] - L : sat_sub(t[k], L), tt, tr, tn, cs, cp,
+        walk_back<kFast>(t, c, k, k, role_of(c[k], cs, cp), kSafe ? wrap_sub(t[k], L) : sat_sub(t[k], L), tt, tr, tn, cs, cp,
                          bin, h, trash);
       }
     }
@@ -342,9 +352,9 @@ std::pair<std::size_t, std::size_t> walk_range(const std::int64_t* t, const Ch* 
     for (; i < b; ++i) {
       const unsigned r = role_of(c[i], cs, cp);
       const std::int64_t ti = t[i];
-      const std::int64_t lim = kSafe ? ti - L : sat_sub(ti, L);
+      const std::int64_t lim = kSafe ? wrap_sub(ti, L) : sat_sub(ti, L);
       uns |= ti < t_prev;
-      const std::int64_t d = std::min(kSafe ? ti - t_prev : sat_sub(ti, t_prev), d_out);
+      const std::int64_t d = std::min(kSafe ? wrap_sub(ti, t_prev) : sat_sub(ti, t_prev), d_out);
       if constexpr (kAuto) count_pair<true>(r, r_prev, d, bin, h, trash + (i & 7u));
       else count_cross(r, r_prev, d, bin, h, trash + (i & 15u));
       if (t[i - 2] >= lim) [[unlikely]]

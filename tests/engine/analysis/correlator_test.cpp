@@ -315,6 +315,19 @@ TEST_CASE("correlator plain walk refuses a decrease anywhere in a chunk and is s
       REQUIRE_THROWS_AS(c.finish(), flyby::InputError);
     }
   }
+  // A decrease across nearly the whole int64 axis (differences that overflow int64; run under
+  // UBSan this checks that the walk meets them without undefined behaviour).
+  constexpr std::int64_t kMax = std::numeric_limits<std::int64_t>::max();
+  constexpr std::int64_t kMin = std::numeric_limits<std::int64_t>::min();
+  for (const auto& t : {std::vector<std::int64_t>{kMax - 10, kMin + 10, kMax - 20, 0},
+                        std::vector<std::int64_t>{kMin + 10, kMax - 10, kMin + 20, kMax - 5}}) {
+    CorrelatorOptions o;
+    o.bin_width_ps = 10;
+    o.range_ps = 100;
+    Correlator c(o);
+    const std::vector<int> ch{0, 1, 0, 1};
+    REQUIRE_THROWS_AS(c.add_chunk(t, ch), flyby::InputError);
+  }
 }
 
 TEST_CASE("correlator reports missing channels as a status, not a crash", "[correlator]") {
