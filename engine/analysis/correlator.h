@@ -125,7 +125,8 @@ class Correlator {
   explicit Correlator(CorrelatorOptions options);
 
   // Appends a chunk of tags. Times must not decrease within or across chunks (InputError
-  // naming the tag otherwise). Channels other than start, stop and herald are only counted.
+  // naming the tag otherwise; the correlator is then spent: later calls throw InputError too).
+  // Channels other than start, stop and herald are only counted.
   void add_chunk(std::span<const std::int64_t> time_ps, std::span<const int> channel);
   void add_chunk(std::span<const std::int64_t> time_ps, std::span<const std::uint8_t> channel);
   void add_chunk(std::span<const std::int64_t> time_ps, std::span<const std::uint16_t> channel);
@@ -153,6 +154,9 @@ class Correlator {
   void process(std::int64_t t_cut);
   void apply_conditions(std::size_t s_end);
   void trim(std::int64_t t_cut);
+  // Throws the InputError naming the first tag of t[0..n) earlier than its predecessor (prev
+  // before t[0]).
+  [[noreturn]] void throw_unsorted(const std::int64_t* t, std::size_t n, std::int64_t prev) const;
 
   CorrelatorOptions opt_;
   int half_bins_ = 0;
@@ -173,6 +177,7 @@ class Correlator {
   std::optional<std::int64_t> first_time_, last_time_;
   std::size_t peak_buffered_ = 0;
   bool finished_ = false;
+  bool failed_ = false;  // a chunk was refused after it had been partly counted: spent
 };
 
 // One-shot convenience for tags already in memory.

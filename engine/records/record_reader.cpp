@@ -184,37 +184,39 @@ void RecordReader::Impl::read_block(std::uint64_t first, std::size_t count, TagB
     fail(e.message);
   }
   // One fast pass without data-dependent branches (this loop runs on every tag of every
-  // analysis): window, channel table, order and, for a sequential read, the tags per channel;
-  // only a block that fails it is scanned again to name the first bad tag.
+  // analysis); only a block that fails it is scanned again to name the first bad tag. Per tag
+  // it checks only the order (and counts the tags per channel): in a sorted block every tag
+  // lies between the first and the last, so the window is checked on those two, and a channel
+  // outside the table shows as a nonzero count of that id.
   const std::int64_t lo = header.start_ps;
   const std::int64_t span = header.duration_ps;
   const auto ulo = static_cast<std::uint64_t>(lo), uspan = static_cast<std::uint64_t>(span);
   const std::int64_t* t = out.time_ps.data();
   const ChannelId* c = out.channel.data();
-  bool bad = false;
   // t >= lo makes the unsigned difference exact even where t - lo would overflow int64.
-  auto check = [&](std::size_t i, std::int64_t prev) {
-    return (t[i] < lo) | (static_cast<std::uint64_t>(t[i]) - ulo >= uspan) | (slot[c[i]] < 0) | (t[i] < prev);
-  };
-  if (seen) {
-    // Four count tables in turn: consecutive tags of one channel would otherwise wait for each
-    // other's increment of the same counter.
-    std::array<std::array<std::uint64_t, 256>, 4> n{};
-    std::size_t i = 0;
-    for (; i + 4 <= count; i += 4) {
-      bad |= check(i, i > 0 ? t[i - 1] : t[i]) | check(i + 1, t[i]) | check(i + 2, t[i + 1]) | check(i + 3, t[i + 2]);
-      ++n[0][c[i]];
-      ++n[1][c[i + 1]];
-      ++n[2][c[i + 2]];
-      ++n[3][c[i + 3]];
-    }
-    for (; i < count; ++i) {
-      bad |= check(i, i > 0 ? t[i - 1] : t[i]);
-      ++n[0][c[i]];
-    }
-    for (std::size_t k = 0; k < 256; ++k) (*seen)[k] += n[0][k] + n[1][k] + n[2][k] + n[3][k];
-  } else {
-    for (std::size_t i = 0; i < count; ++i) bad |= check(i, i > 0 ? t[i - 1] : t[i]);
+  bool bad = (t[0] < lo) | (static_cast<std::uint64_t>(t[count - 1]) - ulo >= uspan);
+  bool unsorted = false;
+  // Four count tables in turn: consecutive tags of one channel would otherwise wait for each
+  // other's increment of the same counter.
+  std::array<std::array<std::uint64_t, 256>, 4> n{};
+  std::size_t i = 1;
+  ++n[0][c[0]];
+  for (; i + 4 <= count; i += 4) {
+    unsorted |= (t[i] < t[i - 1]) | (t[i + 1] < t[i]) | (t[i + 2] < t[i + 1]) | (t[i + 3] < t[i + 2]);
+    ++n[0][c[i]];
+    ++n[1][c[i + 1]];
+    ++n[2][c[i + 2]];
+    ++n[3][c[i + 3]];
+  }
+  for (; i < count; ++i) {
+    unsorted |= t[i] < t[i - 1];
+    ++n[0][c[i]];
+  }
+  bad |= unsorted;
+  for (std::size_t k = 0; k < 256; ++k) {
+    const std::uint64_t m = n[0][k] + n[1][k] + n[2][k] + n[3][k];
+    bad |= (m != 0) & (slot[k] < 0);
+    if (seen) (*seen)[k] += m;
   }
   for (std::uint64_t k = (first + block_tags - 1) / block_tags; k * block_tags < first + count; ++k)
     bad |= index[k] != t[k * block_tags - first];

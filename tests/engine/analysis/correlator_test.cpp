@@ -7,7 +7,9 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <random>
+#include <string>
 #include <vector>
 
 #include "engine/analysis/correlator.h"
@@ -120,6 +122,82 @@ TEST_CASE("correlator equals a brute-force pair count for any chunking and threa
   }
 }
 
+// The plain walk pairs every tag with the one before it without a branch and takes the general
+// walk only when a second earlier tag is within reach; this test covers the regimes where that
+// matters (few pairs per tag as in a lab, bursts of equal time stamps, gaps right at the bin
+// edges, a missing channel, time stamps near the ends of the int64 axis, bins wide enough for
+// the 64-bit division path) against the brute-force count from the definition.
+TEST_CASE("correlator plain walk equals a brute-force count at lab-like sparsity and at the edges", "[correlator]") {
+  auto rng = flyby::make_stream(flyby::test::seed("correlator sparse walk"), flyby::StreamPurpose::kTest, 2);
+  struct Case {
+    const char* what;
+    std::int64_t W, R;       // bin width, range
+    std::int64_t t0;         // first time stamp
+    std::vector<std::int64_t> gaps;  // gaps drawn from these (equally likely) ...
+    std::int64_t mean_gap;   // ... or, if gaps is empty, exponential with this mean
+    int n_channels;          // channels drawn from 0..n_channels−1
+    int start, stop;
+  };
+  constexpr std::int64_t kMax = std::numeric_limits<std::int64_t>::max();
+  constexpr std::int64_t kMin = std::numeric_limits<std::int64_t>::min();
+  const std::vector<Case> cases = {
+      {"sparse: 0.05 pairs per tag", 100, 1000, 0, {}, 20000, 2, 0, 1},
+      {"sparse: 0.3 pairs per tag", 100, 3000, 0, {}, 10000, 2, 0, 1},
+      {"about one earlier tag in reach", 100, 5000, 0, {}, 5000, 2, 1, 0},
+      {"several earlier tags in reach", 10, 2000, 0, {}, 300, 2, 0, 1},
+      {"autocorrelation, sparse", 100, 2000, 0, {}, 10000, 2, 0, 0},
+      {"third channel counts nothing", 100, 2000, 0, {}, 3000, 3, 2, 0},
+      {"bursts of equal time stamps", 10, 100, 0, {0, 0, 0, 1, 500, 3000}, 0, 2, 0, 1},
+      {"equal time stamps, autocorrelation", 10, 100, 0, {0, 0, 2, 800, 5000}, 0, 2, 1, 1},
+      // W = 10, K = 3: bin edges at ±5, ±15, ±25, outer edge ±35 (35 falls outside), look-back 35.
+      {"gaps at the bin edges, even W", 10, 30, 0, {0, 4, 5, 6, 14, 15, 34, 35, 36, 70, 1000}, 0, 2, 0, 1},
+      // W = 7, K = 2: outer edges at −17.5 and +17.5, look-back 18.
+      {"gaps at the bin edges, odd W", 7, 14, 0, {0, 3, 4, 10, 11, 17, 18, 19, 36, 1000}, 0, 2, 1, 0},
+      {"stop channel never occurs", 100, 2000, 0, {}, 1000, 1, 0, 1},
+      {"start channel never occurs", 100, 2000, 0, {}, 1000, 1, 1, 0},
+      {"time stamps near the lowest int64", 10, 100, kMin, {0, 1, 50, 105, 106, 3000}, 0, 2, 0, 1},
+      {"time stamps near the highest int64", 10, 100, kMax - 20'000'000, {0, 1, 50, 105, 106, 3000}, 0, 2, 0, 1},
+      // 2W(2K+1) > 2^32: bins by 64-bit division.
+      {"bins too wide for the 32-bit reciprocal", 3'000'000'000, 6'000'000'000, 0, {}, 4'000'000'000, 2, 0, 1},
+  };
+  for (const auto& cs : cases) {
+    const std::size_t n = 3000;
+    Tags d;
+    std::uniform_int_distribution<std::size_t> ugap(0, cs.gaps.empty() ? 0 : cs.gaps.size() - 1);
+    std::exponential_distribution<double> ex(1.0);
+    std::uniform_int_distribution<int> uc(0, cs.n_channels - 1);
+    std::int64_t t = cs.t0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const std::int64_t g = cs.gaps.empty() ? static_cast<std::int64_t>(ex(rng) * static_cast<double>(cs.mean_gap))
+                                             : cs.gaps[ugap(rng)];
+      if (i > 0) t += g;
+      d.t.push_back(t);
+      d.ch.push_back(uc(rng));
+    }
+    CorrelatorOptions o;
+    o.start_channel = cs.start;
+    o.stop_channel = cs.stop;
+    o.bin_width_ps = cs.W;
+    o.range_ps = cs.R;
+    o.duration_ps = d.t.back() - d.t.front() + 1;
+    o.min_tags_per_thread = 1;
+    INFO(cs.what);
+    const auto expect = brute_force(d, o);
+    std::uint64_t total = 0;
+    for (auto c : expect) total += c;
+    const bool both_channels = cs.n_channels > std::max(cs.start, cs.stop);
+    if (both_channels) REQUIRE(total > 0);  // the case is not vacuous
+    for (int threads : {1, 2}) {
+      o.threads = threads;
+      for (std::size_t max_chunk : {std::size_t{1}, std::size_t{2}, std::size_t{3}, std::size_t{17}, n}) {
+        const auto r = run_chunked(d, o, rng, max_chunk);
+        REQUIRE(r.counts == expect);
+        if (!both_channels) REQUIRE(r.status != CorrelatorStatus::kSuccess);
+      }
+    }
+  }
+}
+
 TEST_CASE("independent Poisson streams give g2 = 1 at every delay", "[correlator]") {
   const std::uint64_t seed = flyby::test::seed("correlator poisson");
   // Two independent Poisson streams of 2e5 /s each over 1 s, plus a third channel as noise.
@@ -201,6 +279,55 @@ TEST_CASE("correlator refuses bad options and unsorted tags with one-line input 
   const std::vector<int> c1{0, 1}, c2{0};
   c.add_chunk(t1, c1);
   REQUIRE_THROWS_AS(c.add_chunk(t2, c2), flyby::InputError);
+}
+
+// The plain walk checks the order on the way (no pass of its own): a decrease anywhere — the
+// first tag against the previous chunk, inside a thread's share, at the seam between two threads'
+// shares — is refused with the tag named, and the correlator is spent afterwards.
+TEST_CASE("correlator plain walk refuses a decrease anywhere in a chunk and is spent afterwards", "[correlator]") {
+  const std::size_t n = 1000;
+  for (int threads : {1, 2}) {
+    for (std::size_t bad : {std::size_t{0}, std::size_t{1}, std::size_t{2}, std::size_t{77}, n / 2, n - 1}) {
+      CorrelatorOptions o;
+      o.threads = threads;
+      o.min_tags_per_thread = 1;
+      o.bin_width_ps = 10;
+      o.range_ps = 100;
+      Correlator c(o);
+      std::vector<std::int64_t> t0{0, 5};
+      std::vector<int> c0{0, 1};
+      c.add_chunk(t0, c0);
+      std::vector<std::int64_t> t(n);
+      std::vector<int> ch(n);
+      for (std::size_t i = 0; i < n; ++i) {
+        t[i] = 10 + 7 * static_cast<std::int64_t>(i);
+        ch[i] = static_cast<int>(i % 2);
+      }
+      t[bad] = bad == 0 ? 4 : t[bad - 1] - 1;  // earlier than its predecessor
+      INFO("threads " << threads << " bad tag " << bad);
+      try {
+        c.add_chunk(t, ch);
+        FAIL("unsorted chunk accepted");
+      } catch (const flyby::InputError& e) {
+        REQUIRE(std::string(e.what()).find("tag " + std::to_string(2 + bad) + " ") != std::string::npos);
+      }
+      REQUIRE_THROWS_AS(c.add_chunk(t0, c0), flyby::InputError);
+      REQUIRE_THROWS_AS(c.finish(), flyby::InputError);
+    }
+  }
+  // A decrease across nearly the whole int64 axis (differences that overflow int64; run under
+  // UBSan this checks that the walk meets them without undefined behaviour).
+  constexpr std::int64_t kMax = std::numeric_limits<std::int64_t>::max();
+  constexpr std::int64_t kMin = std::numeric_limits<std::int64_t>::min();
+  for (const auto& t : {std::vector<std::int64_t>{kMax - 10, kMin + 10, kMax - 20, 0},
+                        std::vector<std::int64_t>{kMin + 10, kMax - 10, kMin + 20, kMax - 5}}) {
+    CorrelatorOptions o;
+    o.bin_width_ps = 10;
+    o.range_ps = 100;
+    Correlator c(o);
+    const std::vector<int> ch{0, 1, 0, 1};
+    REQUIRE_THROWS_AS(c.add_chunk(t, ch), flyby::InputError);
+  }
 }
 
 TEST_CASE("correlator reports missing channels as a status, not a crash", "[correlator]") {
