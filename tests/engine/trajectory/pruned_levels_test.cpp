@@ -24,8 +24,9 @@ trajectory::Model cycling_atom(double omega, double gamma, double end_us) {
   m.subsystems = {space::Subsystem::levels("atom", d)};
   m.initial = {{0, test::basis(d, 2)}};  // |F = 1, m = +1⟩
   m.hamiltonian.add(Operator::local(0, a[2].adjoint() + a[2], omega / 2));  // σ+ (q = +1) drive
+  const char* names[3] = {"q-1", "q0", "q1"};  // (a literal table: GCC 12 warns -Wrestrict on "q" + to_string)
   for (int q = 0; q < 3; ++q)
-    m.channels.push_back({"q" + std::to_string(q - 1), true, Operator::local(0, a[std::size_t(q)], std::sqrt(gamma))});
+    m.channels.push_back({names[q], true, Operator::local(0, a[std::size_t(q)], std::sqrt(gamma))});
   operators::LocalMatrix pe = operators::LocalMatrix::Zero(d, d);
   for (int k = 3; k < d; ++k) pe(k, k) = 1.0;
   m.physical_decay = Operator::local(0, pe, gamma);
