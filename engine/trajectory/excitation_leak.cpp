@@ -92,6 +92,18 @@ std::unique_ptr<ExcitationLeak> ExcitationLeak::build(const Model& m, const spac
   return leak;
 }
 
+bool ExcitationLeak::rebind(const Model& m, const space::Layout& layout) {
+  if (!timed_channels_.empty()) return false;
+  // The terms build() kept, in the same order: active in the shell (the same present subsystems
+  // as `layout`, so the same terms) and time dependent.
+  std::vector<const operators::Coefficient*> coefficients;
+  for (const auto& term : m.hamiltonian.terms())
+    if (term.op.active_in(layout) && term.coefficient.time_dependent()) coefficients.push_back(&term.coefficient);
+  if (coefficients.size() != timed_.size()) return false;
+  for (std::size_t k = 0; k < timed_.size(); ++k) timed_[k].first = coefficients[k];
+  return true;
+}
+
 double ExcitationLeak::population(const Vector& psi, double t_us) const {
   const double n2 = psi.squaredNorm();
   if (!(n2 > 0) || out_const_.rows() == 0) return 0.0;
