@@ -1,6 +1,7 @@
 // Adiabatic estimate of the first excluded excitation shell (see excitation_leak.h).
 #include "engine/trajectory/excitation_leak.h"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 
@@ -130,11 +131,19 @@ double ExcitationLeak::population(const Vector& psi, double t_us) const {
   if (lu_const_) {
     c_out = lu_const_->solve(rhs);
   } else {
-    Eigen::SparseLU<Sparse> lu;
     out.makeCompressed();
-    lu.compute(out);
-    if (lu.info() != Eigen::Success) return std::numeric_limits<double>::infinity();
-    c_out = lu.solve(rhs);
+    const int* outer = out.outerIndexPtr();
+    const int* inner = out.innerIndexPtr();
+    const std::size_t cols = std::size_t(out.cols()) + 1, nnz = std::size_t(out.nonZeros());
+    if (lu_outer_.size() != cols || lu_inner_.size() != nnz || !std::equal(outer, outer + cols, lu_outer_.begin()) ||
+        !std::equal(inner, inner + nnz, lu_inner_.begin())) {
+      lu_timed_.analyzePattern(out);
+      lu_outer_.assign(outer, outer + cols);
+      lu_inner_.assign(inner, inner + nnz);
+    }
+    lu_timed_.factorize(out);
+    if (lu_timed_.info() != Eigen::Success) return std::numeric_limits<double>::infinity();
+    c_out = lu_timed_.solve(rhs);
   }
   return c_out.squaredNorm() / n2;
 }

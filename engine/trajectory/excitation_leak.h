@@ -47,6 +47,12 @@ class ExcitationLeak {
   std::vector<TimedChannel> timed_channels_;
   std::vector<Complex> controls_;
   std::shared_ptr<Eigen::SparseLU<Sparse>> lu_const_;  // factorized out block when nothing is time dependent
+  // Time-dependent out block: its sparsity pattern is the same at every call (the union of the
+  // terms' patterns), so the symbolic analysis (column ordering) is done once and each call only
+  // factorizes — what SparseLU::compute does in two steps, hence the same bits. Mutable scratch
+  // of population(): an estimator belongs to one stretch of one thread's workspace.
+  mutable Eigen::SparseLU<Sparse> lu_timed_;
+  mutable std::vector<int> lu_outer_, lu_inner_;  // pattern lu_timed_ was analyzed for
 };
 
 }  // namespace flyby::trajectory
