@@ -1,6 +1,7 @@
 // Channel completeness: Σ C†C against the model's physical decay, per coupled group.
 #include "engine/channels/channel.h"
 
+#include <algorithm>
 #include <numeric>
 #include <sstream>
 
@@ -33,6 +34,73 @@ operators::Operator Channel::at(double t_us, const std::vector<operators::Comple
   return c;
 }
 
+namespace {
+
+// Per-thread memory of groups that passed the check, keyed by everything the check of a group
+// reads (see group_key); most recently passed last. A beam builds one model per atom whose groups
+// (the atom alone, the modes together) repeat exactly, up to the subsystem ids, so each distinct
+// group is checked once per thread instead of once per atom (docs/performance.md, thermal-beam
+// reference). Only passes are remembered; the outcome for a key is a deterministic function of
+// the key, so the cache changes no result, only the time.
+struct PassedGroups {
+  std::vector<std::vector<double>> keys;
+  std::size_t hits = 0;
+  static constexpr std::size_t kCapacity = 32;
+};
+
+PassedGroups& passed_groups() {
+  thread_local PassedGroups p;
+  return p;
+}
+
+// Exact description (no hashing) of what the check of one group depends on: the tolerance, the
+// group's subsystems (dimension, allowed levels, excitation numbers — not their names or ids)
+// and every channel and decay term on the group, with targets as positions in the group.
+std::vector<double> group_key(const std::vector<space::Subsystem>& subsystems, const std::vector<space::SubsystemId>& group,
+                              const std::vector<const operators::Operator*>& channel_ops,
+                              const std::vector<const operators::Operator*>& decay_terms, double relative_tolerance) {
+  std::vector<double> key;
+  auto cplx = [&](operators::Complex c) {
+    key.push_back(c.real());
+    key.push_back(c.imag());
+  };
+  auto op_key = [&](const operators::Operator& op) {
+    key.push_back(double(op.terms().size()));
+    for (const auto& pt : op.terms()) {
+      cplx(pt.weight);
+      key.push_back(double(pt.factors.size()));
+      for (const auto& f : pt.factors) {
+        key.push_back(double(std::find(group.begin(), group.end(), f.target) - group.begin()));
+        key.push_back(double(f.matrix.rows()));
+        key.push_back(double(f.matrix.cols()));
+        const operators::Complex* d = f.matrix.data();
+        for (long k = 0; k < f.matrix.size(); ++k)
+          if (d[k] != operators::Complex(0.0)) {
+            key.push_back(double(k));
+            cplx(d[k]);
+          }
+        key.push_back(-1.0);
+      }
+    }
+  };
+  key.push_back(relative_tolerance);
+  key.push_back(double(group.size()));
+  for (auto id : group) {
+    const auto& sub = subsystems[std::size_t(id)];
+    key.push_back(double(sub.dimension));
+    for (int k = 0; k < sub.dimension; ++k) key.push_back(double(sub.excitation_of(k)) + (sub.is_allowed(k) ? 0.0 : 0.5));
+  }
+  key.push_back(double(channel_ops.size()));
+  for (const auto* op : channel_ops) op_key(*op);
+  key.push_back(double(decay_terms.size()));
+  for (const auto* op : decay_terms) op_key(*op);
+  return key;
+}
+
+}  // namespace
+
+std::size_t channel_completeness_cache_hits() { return passed_groups().hits; }
+
 void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
                                 const std::vector<Channel>& channels,
                                 const operators::Operator& physical_decay,
@@ -41,15 +109,10 @@ void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
   const int n = int(subsystems.size());
   std::vector<int> parent(n);
   std::iota(parent.begin(), parent.end(), 0);
-  std::vector<Operator> ctc;
   for (const auto& c : channels) {
-    if (c.time_dependent()) {  // not checked here (channel.h)
-      ctc.emplace_back();
-      continue;
-    }
+    if (c.time_dependent()) continue;  // not checked here (channel.h)
     for (auto id : c.op.support())
       if (id < 0 || id >= n) throw InputError("channel '" + c.label + "' acts on an unknown subsystem");
-    ctc.push_back(c.op.adjoint() * c.op);
     unite(parent, c.op.support());
   }
   // Split the decay operator into its terms so each group sees only its own part.
@@ -63,15 +126,26 @@ void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
   }
   std::vector<std::vector<space::SubsystemId>> groups(n);
   for (int i = 0; i < n; ++i) groups[find(parent, i)].push_back(i);
+  PassedGroups& passed = passed_groups();
   for (const auto& group : groups) {
     if (group.empty()) continue;
+    std::vector<const Operator*> group_channels, group_decay;
+    for (const auto& c : channels)
+      if (!c.time_dependent() && !c.op.support().empty() && subset_of(c.op.support(), group)) group_channels.push_back(&c.op);
+    for (const auto& d : decay_terms)
+      if (!d.support().empty() && subset_of(d.support(), group)) group_decay.push_back(&d);
+    if (group_channels.empty() && group_decay.empty()) continue;
+    std::vector<double> key = group_key(subsystems, group, group_channels, group_decay, relative_tolerance);
+    const auto seen = std::find(passed.keys.begin(), passed.keys.end(), key);
+    if (seen != passed.keys.end()) {
+      std::rotate(seen, seen + 1, passed.keys.end());
+      ++passed.hits;
+      continue;
+    }
     space::Layout layout(&subsystems, group);
     Operator sum_ctc, decay;
-    for (std::size_t k = 0; k < ctc.size(); ++k)
-      if (!channels[k].time_dependent() && !channels[k].op.support().empty() && subset_of(channels[k].op.support(), group)) sum_ctc += ctc[k];
-    for (const auto& d : decay_terms)
-      if (!d.support().empty() && subset_of(d.support(), group)) decay += d;
-    if (sum_ctc.empty() && decay.empty()) continue;
+    for (const auto* c : group_channels) sum_ctc += c->adjoint() * *c;
+    for (const auto* d : group_decay) decay += *d;
     double diff = 0, scale = 0;
     if (layout.dimension() <= 4096) {
       operators::SparseMatrix a = operators::to_sparse(sum_ctc, layout);
@@ -99,6 +173,8 @@ void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
           << "); add the missing (e.g. undetected) channel or fix the channel rates";
       throw InputError(msg.str());
     }
+    if (passed.keys.size() >= PassedGroups::kCapacity) passed.keys.erase(passed.keys.begin());
+    passed.keys.push_back(std::move(key));
   }
 }
 

@@ -40,4 +40,10 @@ void check_channel_completeness(const std::vector<space::Subsystem>& subsystems,
                                 const operators::Operator& physical_decay,
                                 double relative_tolerance = 1e-9);
 
+// The check remembers, per thread, the groups that passed (the last 32, compared exactly by
+// their subsystems' bases, channels, decay terms and tolerance — not by subsystem names or ids):
+// an identical group, e.g. the next atom of a beam, is not recomputed. Number of such skips on
+// the calling thread so far (for tests).
+std::size_t channel_completeness_cache_hits();
+
 }  // namespace flyby::channels

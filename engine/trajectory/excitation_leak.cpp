@@ -1,6 +1,7 @@
 // Adiabatic estimate of the first excluded excitation shell (see excitation_leak.h).
 #include "engine/trajectory/excitation_leak.h"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 
@@ -92,6 +93,18 @@ std::unique_ptr<ExcitationLeak> ExcitationLeak::build(const Model& m, const spac
   return leak;
 }
 
+bool ExcitationLeak::rebind(const Model& m, const space::Layout& layout) {
+  if (!timed_channels_.empty()) return false;
+  // The terms build() kept, in the same order: active in the shell (the same present subsystems
+  // as `layout`, so the same terms) and time dependent.
+  std::vector<const operators::Coefficient*> coefficients;
+  for (const auto& term : m.hamiltonian.terms())
+    if (term.op.active_in(layout) && term.coefficient.time_dependent()) coefficients.push_back(&term.coefficient);
+  if (coefficients.size() != timed_.size()) return false;
+  for (std::size_t k = 0; k < timed_.size(); ++k) timed_[k].first = coefficients[k];
+  return true;
+}
+
 double ExcitationLeak::population(const Vector& psi, double t_us) const {
   const double n2 = psi.squaredNorm();
   if (!(n2 > 0) || out_const_.rows() == 0) return 0.0;
@@ -118,11 +131,19 @@ double ExcitationLeak::population(const Vector& psi, double t_us) const {
   if (lu_const_) {
     c_out = lu_const_->solve(rhs);
   } else {
-    Eigen::SparseLU<Sparse> lu;
     out.makeCompressed();
-    lu.compute(out);
-    if (lu.info() != Eigen::Success) return std::numeric_limits<double>::infinity();
-    c_out = lu.solve(rhs);
+    const int* outer = out.outerIndexPtr();
+    const int* inner = out.innerIndexPtr();
+    const std::size_t cols = std::size_t(out.cols()) + 1, nnz = std::size_t(out.nonZeros());
+    if (lu_outer_.size() != cols || lu_inner_.size() != nnz || !std::equal(outer, outer + cols, lu_outer_.begin()) ||
+        !std::equal(inner, inner + nnz, lu_inner_.begin())) {
+      lu_timed_.analyzePattern(out);
+      lu_outer_.assign(outer, outer + cols);
+      lu_inner_.assign(inner, inner + nnz);
+    }
+    lu_timed_.factorize(out);
+    if (lu_timed_.info() != Eigen::Success) return std::numeric_limits<double>::infinity();
+    c_out = lu_timed_.solve(rhs);
   }
   return c_out.squaredNorm() / n2;
 }

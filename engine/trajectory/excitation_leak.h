@@ -24,6 +24,13 @@ class ExcitationLeak {
   // function are evaluated when population() is called; controls are fixed for the stretch.
   static std::unique_ptr<ExcitationLeak> build(const Model& model, const space::Layout& layout,
                                                const std::vector<Complex>& controls);
+  // Point the time-dependent coefficients at `model`'s Hamiltonian terms, for a model whose
+  // stretch signature (integrator.cpp: subsystem bases, active terms and channels with their
+  // constants, controls and order of time functions, excitation limit) equals that of the model
+  // this estimator was built from, so every matrix is the same and only the time functions
+  // differ (the next atom of a beam). Returns false, changing nothing, when the estimator has
+  // time-dependent channels or the number of time-dependent terms differs: build a new one.
+  bool rebind(const Model& model, const space::Layout& layout);
   // Estimated population of the first excluded shell relative to ‖ψ‖², at time t_us.
   double population(const Vector& psi, double t_us) const;
 
@@ -40,6 +47,12 @@ class ExcitationLeak {
   std::vector<TimedChannel> timed_channels_;
   std::vector<Complex> controls_;
   std::shared_ptr<Eigen::SparseLU<Sparse>> lu_const_;  // factorized out block when nothing is time dependent
+  // Time-dependent out block: its sparsity pattern is the same at every call (the union of the
+  // terms' patterns), so the symbolic analysis (column ordering) is done once and each call only
+  // factorizes — what SparseLU::compute does in two steps, hence the same bits. Mutable scratch
+  // of population(): an estimator belongs to one stretch of one thread's workspace.
+  mutable Eigen::SparseLU<Sparse> lu_timed_;
+  mutable std::vector<int> lu_outer_, lu_inner_;  // pattern lu_timed_ was analyzed for
 };
 
 }  // namespace flyby::trajectory

@@ -91,6 +91,10 @@ struct Stretch {
   std::vector<int> channel_ids;
   std::vector<SparseMatrix> channel_ops;
   std::vector<std::pair<SubsystemId, int>> modes;  // (mode id, index of its top Fock state)
+  // Per mode, the increasing positions of the states with that mode in its top Fock state: the
+  // Fock monitor's sum Σ |ψ_i|² after every step, in the order space::Layout::local_population
+  // sums (the same bits), without its per-state index arithmetic.
+  std::vector<std::vector<long>> top_fock_states;
   bool exact = false;
   Eigen::MatrixXcd v, v_inv;
   // When Σ C†C is diagonal with real entries (atoms decaying by Γ Σ_q A_q†A_q = Γ·P_e, modes by
@@ -108,7 +112,7 @@ struct Stretch {
   std::vector<double> v_lanes;
   std::vector<double> v_inv_lanes;  // V⁻¹ the same way, for the coefficients V⁻¹ψ0 of each leg
   Eigen::VectorXcd lambda;
-  std::shared_ptr<const ExcitationLeak> leak;  // set when the layout is excitation-restricted
+  std::shared_ptr<ExcitationLeak> leak;  // set when the layout is excitation-restricted
   Eigen::VectorXd lambda_re, lambda_im;  // Re λ, Im λ (≤ 0) of the eigenvalues of H_eff
   double lambda_scale = 0;               // max |λ|
 };
@@ -236,8 +240,10 @@ struct Run {
     if (s.modes.empty()) return;
     const double n2 = psi.squaredNorm();
     if (!(n2 > 0)) return;
-    for (const auto& [id, top] : s.modes) {
-      const double p = s.layout.local_population(id, top, psi) / n2;
+    for (const auto& states : s.top_fock_states) {
+      double sum = 0;
+      for (long i : states) sum += std::norm(psi[i]);
+      const double p = sum / n2;
       if (p > summary.top_fock_population_max) summary.top_fock_population_max = p;
     }
   }
@@ -565,6 +571,13 @@ std::shared_ptr<Stretch> build_stretch(const Model& m, const Options& opt, const
   s->decay.prune(Complex(0.0));
   for (auto id : present)
     if (m.subsystems[id].kind == space::SubsystemKind::kMode) s->modes.emplace_back(id, m.subsystems[id].dimension - 1);
+  for (const auto& [id, top] : s->modes) {
+    std::vector<long> states;
+    const long stride = s->layout.stride_of(id), dim = s->layout.dimension_of(id);
+    for (long i = 0; i < n; ++i)
+      if ((s->layout.full_index(i) / stride) % dim == top) states.push_back(i);
+    s->top_fock_states.push_back(std::move(states));
+  }
   if (!s->timed_any() && opt.exact_exponential && n <= opt.max_exact_dimension) {
     Eigen::MatrixXcd dense = Eigen::MatrixXcd(s->heff_const);
     Eigen::ComplexEigenSolver<Eigen::MatrixXcd> es(dense);
@@ -1055,7 +1068,8 @@ TrajectoryResult Integrator::run(Rng& rng, Workspace& workspace) const {
       e->controls = controls;
       e->layout = std::move(probe);
       e->fns = stretch_time_functions(m, e->layout);
-      e->leak = ExcitationLeak::build(m, e->layout, controls);
+      // Equal signatures give equal leak matrices: only the time functions are the new model's.
+      if (e->leak && !e->leak->rebind(m, e->layout)) e->leak = ExcitationLeak::build(m, e->layout, controls);
       cache.entries.erase(cache.entries.begin() + long(k));
       cache.entries.push_back(std::move(e));
       return *cache.entries.back();

@@ -444,7 +444,7 @@ ItemResult run_item(const BlockContext& c, const Item& it, trajectory::Workspace
   trajectory::Model model = c.builder.build(atoms, it.start_us, it.end_us, channel_of, it.basis);
   for (const auto& sub : model.subsystems)
     for (bool a : sub.allowed) r.pruned += !a;
-  trajectory::Integrator integ(model, c.topt);
+  trajectory::Integrator integ(std::move(model), c.topt);  // not used below: no copy of the model
   Rng rng = make_stream(c.seed, StreamPurpose::kTrajectory, it.stream);
   const auto tr = integ.run(rng, ws);
   r.jumps = tr.summary.jumps;

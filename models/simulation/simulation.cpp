@@ -47,6 +47,8 @@ struct AtomMatrices {
   std::vector<bool> excited;
   std::vector<double> loss;                  // loss fraction per sublevel
   std::vector<double> zero_field;            // reference-frame energies at B = 0
+  LocalMatrix decay;                         // Σ_q A_q†A_q (times Γ: the atom's physical decay)
+  std::vector<LocalMatrix> free_space;       // Σ_q c_q A_q per free-space detector channel
 };
 
 // Sublevel energies in the reference frame at B = 0 (the hyperfine offsets).
@@ -113,6 +115,14 @@ AtomMatrices atom_matrices(const config::CheckedScenario& s) {
     m.excited[i] = sub[i].excited;
     m.loss[i] = L.loss_fraction(i);
     if (!level_coupled[{sub[i].excited, sub[i].two_F}]) m.frame_offset[i] = e0[i];
+  }
+  // The same for every atom of the scenario: formed once here, not in each cluster model.
+  m.decay = LocalMatrix::Zero(m.dim, m.dim);
+  for (int q = 0; q < 3; ++q) m.decay += m.lowering[q].adjoint() * m.lowering[q];
+  for (const auto& ch : s.free_space_channels) {
+    LocalMatrix C = LocalMatrix::Zero(m.dim, m.dim);
+    for (int q = 0; q < 3; ++q) C += ch.coefficients(q) * m.lowering[q];
+    m.free_space.push_back(std::move(C));
   }
   return m;
 }
@@ -630,14 +640,12 @@ trajectory::Model build_model(const config::CheckedScenario& s, const AtomMatric
     }
     // Decay: free-space channels (detected + undetected) or all undetected; loss to levels
     // outside the model into the 'lost' state.
-    LocalMatrix decay = LocalMatrix::Zero(A.dim, A.dim);
-    for (int q = 0; q < 3; ++q) decay += A.lowering[q].adjoint() * A.lowering[q];
-    m.physical_decay += Operator::local(id, decay, gamma);
+    m.physical_decay += Operator::local(id, A.decay, gamma);
     const std::string who = atom_label(ca.arrival);
     if (!s.free_space_channels.empty()) {
-      for (const auto& ch : s.free_space_channels) {
-        LocalMatrix C = LocalMatrix::Zero(A.dim, A.dim);
-        for (int q = 0; q < 3; ++q) C += ch.coefficients(q) * A.lowering[q];
+      for (std::size_t c = 0; c < s.free_space_channels.size(); ++c) {
+        const auto& ch = s.free_space_channels[c];
+        const LocalMatrix& C = A.free_space[c];
         if (ch.detected)
           add_channel(ch.channel, true, Operator::local(id, C));
         else

@@ -6,6 +6,7 @@
 #include <cmath>
 #include <complex>
 
+#include "engine/trajectory/excitation_leak.h"
 #include "engine/trajectory/integrator.h"
 #include "tests/engine/engine_test_models.h"
 #include "tests/support/test_seed.h"
@@ -112,5 +113,63 @@ TEST_CASE("stretches reused across integrators give the records of fresh workspa
   for (std::size_t j = 0; j < x2.jumps.size(); ++j) {
     CHECK(x2.jumps[j].time_us == x3.jumps[j].time_us);
     CHECK(x2.jumps[j].channel == x3.jumps[j].channel);
+  }
+}
+
+TEST_CASE("a reused stretch's excitation-leak estimate equals a fresh one", "[integrator]") {
+  // The Jaynes–Cummings model above with a resonant mode drive η(t)(a + a†), truncated to ≤ 1
+  // excitation: the drive feeds the excluded two-excitation shell, so the leak estimate
+  // (trajectory::ExcitationLeak) is nonzero and depends on η(t). The second Integrator differs
+  // only in η(t): through a shared workspace it reuses the first one's stretch and leak matrices
+  // with its own time functions, and must report what a fresh workspace reports, bit for bit.
+  const std::uint64_t seed = test::seed("leak reuse");
+  const double kappa = 0.7, gamma = 1.3;
+  auto driven = [&](std::function<Complex(double)> eta) {
+    auto m = jaynes_cummings([](double t) { return Complex(1.5 + 0.5 * std::cos(0.3 * t)); }, kappa, gamma, 20);
+    m.hamiltonian.add_hermitian(operators::Coefficient::of_time(std::move(eta)),
+                                operators::Operator::local(0, test::annihilation(3)));
+    m.max_excitation = 1;
+    return m;
+  };
+  trajectory::Integrator ia(driven([](double) { return Complex(0.3); })),
+      ib(driven([](double t) { return Complex(0.3 + 0.2 * std::sin(0.5 * t)); }));
+  for (std::uint64_t k = 0; k < 4; ++k) {
+    auto r_fresh = make_stream(seed, StreamPurpose::kTest, k), r_shared = r_fresh, r_a = r_fresh;
+    const auto fresh = ib.run(r_fresh);
+    trajectory::Workspace ws;
+    const auto first = ia.run(r_a, ws);
+    const auto shared = ib.run(r_shared, ws);
+    REQUIRE(fresh.summary.ok());
+    REQUIRE(shared.summary.ok());
+    CHECK(fresh.summary.excitation_leak_max > 0.0);
+    CHECK(shared.summary.excitation_leak_max == fresh.summary.excitation_leak_max);
+    CHECK(first.summary.excitation_leak_max != fresh.summary.excitation_leak_max);
+    CHECK(shared.summary.top_fock_population_max == fresh.summary.top_fock_population_max);
+    REQUIRE(shared.jumps.size() == fresh.jumps.size());
+    for (std::size_t j = 0; j < fresh.jumps.size(); ++j) CHECK(shared.jumps[j].time_us == fresh.jumps[j].time_us);
+  }
+}
+
+TEST_CASE("the leak estimate with a reused symbolic LU analysis equals a fresh estimate", "[integrator]") {
+  // Driven Jaynes–Cummings model truncated to ≤ 1 excitation (as above): the out block (the
+  // two-excitation shell) holds the time-dependent coupling g(t), so every population() call
+  // factorizes it anew; after the first call the column ordering of its unchanged pattern is
+  // reused. A fresh estimator per time (no reuse) must give the same bits.
+  const std::uint64_t seed = test::seed("leak lu reuse");
+  auto m = jaynes_cummings([](double t) { return Complex(1.5 + 0.5 * std::cos(0.3 * t)); }, 0.7, 1.3, 20);
+  m.hamiltonian.add_hermitian(operators::Coefficient::of_time([](double t) { return Complex(0.3 + 0.2 * std::sin(0.5 * t)); }),
+                              operators::Operator::local(0, test::annihilation(3)));
+  m.max_excitation = 1;
+  const space::Layout layout(&m.subsystems, {0, 1}, 1);
+  const auto reused = trajectory::ExcitationLeak::build(m, layout, m.controls);
+  REQUIRE(reused);
+  auto rng = make_stream(seed, StreamPurpose::kTest, 0);
+  space::Vector psi(layout.dimension());
+  for (auto& x : psi) x = Complex(uniform_open0(rng) - 0.5, uniform_open0(rng) - 0.5);
+  for (double t : {0.0, 0.7, 3.1, 9.4, 15.0}) {
+    const double p = reused->population(psi, t);
+    const double fresh = trajectory::ExcitationLeak::build(m, layout, m.controls)->population(psi, t);
+    CHECK(p > 0.0);
+    CHECK(p == fresh);
   }
 }
