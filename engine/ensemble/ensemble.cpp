@@ -8,6 +8,7 @@
 namespace flyby::ensemble {
 
 int omp_default_threads() { return omp_get_max_threads(); }
+int omp_thread_index() { return omp_get_thread_num(); }
 
 std::string Summary::brief_report() const {
   std::ostringstream o;

@@ -40,16 +40,26 @@ Result run(const trajectory::Integrator& integrator, std::size_t count, std::uin
 // Threads OpenMP would use by default (OMP_NUM_THREADS or the core count).
 int omp_default_threads();
 
-// Generic ordered parallel map: out[i] = fn(i, workspace) for i < count, with one Workspace per
-// thread and dynamic scheduling. The first exception (lowest index) is rethrown after the loop.
+// Number of the calling thread in its OpenMP team (0 outside a parallel region).
+int omp_thread_index();
+
+// Generic ordered parallel map: out[i] = fn(i, workspace) for i < count, with dynamic
+// scheduling and the workspace of the OpenMP thread that runs item i taken from `pool` (one per
+// thread number, grown as needed) and left there: its stretch cache carries over to the next
+// call with the same pool (the time blocks of a run), which changes no result — a cached entry
+// is a deterministic function of its key. Calls sharing a pool must not overlap. The first
+// exception (lowest index) is rethrown after the loop.
 template <class T>
 std::vector<T> map_ordered(std::size_t count, int threads,
-                           const std::function<T(std::size_t, trajectory::Workspace&)>& fn) {
+                           const std::function<T(std::size_t, trajectory::Workspace&)>& fn,
+                           std::vector<trajectory::Workspace>& pool) {
+  const int team = threads > 0 ? threads : omp_default_threads();
+  if (pool.size() < std::size_t(team)) pool.resize(std::size_t(team));
   std::vector<T> out(count);
   std::vector<std::exception_ptr> errors(count);
-#pragma omp parallel num_threads(threads > 0 ? threads : omp_default_threads())
+#pragma omp parallel num_threads(team)
   {
-    trajectory::Workspace ws;
+    trajectory::Workspace& ws = pool[std::size_t(omp_thread_index())];
 #pragma omp for schedule(dynamic, 1)
     for (long i = 0; i < long(count); ++i) {
       try {
@@ -62,6 +72,14 @@ std::vector<T> map_ordered(std::size_t count, int threads,
   for (auto& e : errors)
     if (e) std::rethrow_exception(e);
   return out;
+}
+
+// The same with fresh workspaces for this call only.
+template <class T>
+std::vector<T> map_ordered(std::size_t count, int threads,
+                           const std::function<T(std::size_t, trajectory::Workspace&)>& fn) {
+  std::vector<trajectory::Workspace> pool;
+  return map_ordered<T>(count, threads, fn, pool);
 }
 
 }  // namespace flyby::ensemble

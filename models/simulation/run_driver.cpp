@@ -411,6 +411,11 @@ struct BlockContext {
   std::vector<double> rates;  // empty-resonator rate per detector channel, 1/µs
   double rate_total = 0.0;
   int threads = 0;
+  // The OpenMP threads' workspaces, kept from block to block so that the stretch caches carry
+  // over (each process computes one block at a time). Fresh ones per block cost the 2-rank run
+  // of thermal_beam_resonator.toml (59 blocks, against 3 in one process) 28 % more CPU
+  // (docs/performance.md, "MPI").
+  mutable std::vector<trajectory::Workspace> workspaces;
 };
 
 ItemResult run_item(const BlockContext& c, const Item& it, trajectory::Workspace& ws) {
@@ -483,7 +488,7 @@ std::vector<ItemResult> run_block(const BlockContext& c, std::size_t b, const st
     ItemResult r = run_item(c, it, ws);
     if (on_item) on_item(!it.empty_piece);
     return r;
-  });
+  }, c.workspaces);
   std::vector<ItemResult> out(count);
   for (std::size_t k = 0; k < count; ++k) out[order[k]] = std::move(done[k]);
   return out;
@@ -640,7 +645,7 @@ Summary simulate(const config::CheckedScenario& s, const Options& o) {
   const Plan plan = make_plan(s, builder, D, sum, o.block_items, rk.size);
   ph.plan_s += lap.lap();
 
-  BlockContext ctx{s, builder, plan, {}, sum.seed, D, empty_resonator_rates_per_us(s), 0.0, o.threads};
+  BlockContext ctx{s, builder, plan, {}, sum.seed, D, empty_resonator_rates_per_us(s), 0.0, o.threads, {}};
   for (double r : ctx.rates) ctx.rate_total += r;
   ctx.topt.rtol = s.config.run.relative_tolerance;
   ctx.topt.atol = std::min(1e-8, ctx.topt.rtol * 1e-2);

@@ -11,6 +11,21 @@ using namespace flyby;
 
 namespace {
 
+// Resonator with an atom that arrives and leaves (events, exact and adaptive stretches).
+trajectory::Model arriving_atom_model() {
+  auto model = test::resonator(1.0, 1.0, 1.0, 0.6, 0, 4, 30.0);
+  model.subsystems.push_back(space::Subsystem::levels("atom", 2));
+  const auto a = test::annihilation(4), sm = test::sigma_minus();
+  model.hamiltonian.add_hermitian(
+      operators::Coefficient::of_time([](double t) { return operators::Complex(std::exp(-(t - 15) * (t - 15) / 9), 0); }),
+      operators::Operator::product({{0, a.adjoint()}, {1, sm}}));
+  model.channels.push_back({"atom", true, operators::Operator::local(1, sm)});
+  model.physical_decay += operators::Operator::local(1, sm.adjoint() * sm);
+  model.events.push_back({8.0, trajectory::Attach{1, test::basis(2, 1)}});
+  model.events.push_back({22.0, trajectory::Detach{1}});
+  return model;
+}
+
 void require_identical(const ensemble::Result& a, const ensemble::Result& b, std::size_t offset = 0) {
   for (std::size_t i = 0; i < b.trajectories.size(); ++i) {
     const auto& ta = a.trajectories[i + offset];
@@ -29,17 +44,7 @@ void require_identical(const ensemble::Result& a, const ensemble::Result& b, std
 
 TEST_CASE("ensembles give bit-identical records for 1 and 2 threads", "[ensemble]") {
   const std::uint64_t seed = test::seed("ensemble threads");
-  // Resonator with an atom that arrives and leaves (events, exact and adaptive stretches).
-  auto model = test::resonator(1.0, 1.0, 1.0, 0.6, 0, 4, 30.0);
-  model.subsystems.push_back(space::Subsystem::levels("atom", 2));
-  const auto a = test::annihilation(4), sm = test::sigma_minus();
-  model.hamiltonian.add_hermitian(
-      operators::Coefficient::of_time([](double t) { return operators::Complex(std::exp(-(t - 15) * (t - 15) / 9), 0); }),
-      operators::Operator::product({{0, a.adjoint()}, {1, sm}}));
-  model.channels.push_back({"atom", true, operators::Operator::local(1, sm)});
-  model.physical_decay += operators::Operator::local(1, sm.adjoint() * sm);
-  model.events.push_back({8.0, trajectory::Attach{1, test::basis(2, 1)}});
-  model.events.push_back({22.0, trajectory::Detach{1}});
+  const auto model = arriving_atom_model();
   trajectory::Integrator integ(model);
   ensemble::Options one, two;
   one.threads = 1;
@@ -53,4 +58,43 @@ TEST_CASE("ensembles give bit-identical records for 1 and 2 threads", "[ensemble
   block.first_index = 40;
   const auto r3 = ensemble::run(integ, 24, seed, block);
   require_identical(r1, r3, 40);
+}
+
+TEST_CASE("workspaces kept in a pool carry their stretch caches to the next map and change no result", "[ensemble]") {
+  // What the time blocks of a run rely on (models/simulation/run_driver.cpp): the second block's
+  // trajectories find the decompositions the first block made, even through a new Integrator of
+  // the same model (the next block's cluster), and draw the same jumps as with fresh workspaces.
+  const std::uint64_t seed = test::seed("ensemble workspace pool");
+  const auto model = arriving_atom_model();
+  const trajectory::Integrator first(model), second(model);
+  const std::function<trajectory::TrajectoryResult(std::size_t, trajectory::Workspace&)> by_first =
+      [&](std::size_t i, trajectory::Workspace& ws) {
+        Rng rng = make_stream(seed, StreamPurpose::kTrajectory, i);
+        return first.run(rng, ws);
+      };
+  const std::function<trajectory::TrajectoryResult(std::size_t, trajectory::Workspace&)> by_second =
+      [&](std::size_t i, trajectory::Workspace& ws) {
+        Rng rng = make_stream(seed, StreamPurpose::kTrajectory, 100 + i);
+        return second.run(rng, ws);
+      };
+  auto decompositions = [](const std::vector<trajectory::TrajectoryResult>& r) {
+    long n = 0;
+    for (const auto& t : r) n += t.summary.eigendecompositions;
+    return n;
+  };
+  const int threads = GENERATE(1, 2);
+  std::vector<trajectory::Workspace> pool;
+  const auto a = ensemble::map_ordered<trajectory::TrajectoryResult>(16, threads, by_first, pool);
+  CHECK(pool.size() == std::size_t(threads));
+  CHECK(decompositions(a) > 0);
+  const auto b = ensemble::map_ordered<trajectory::TrajectoryResult>(16, threads, by_second, pool);
+  // One thread has met every stretch in the first map; with two, dynamic scheduling decides
+  // which thread met which, so only the results (below) are fixed.
+  if (threads == 1) CHECK(decompositions(b) == 0);
+  const auto fresh = ensemble::map_ordered<trajectory::TrajectoryResult>(16, threads, by_second);
+  CHECK(decompositions(fresh) > 0);
+  ensemble::Result rb, rf;
+  rb.trajectories = b;
+  rf.trajectories = fresh;
+  require_identical(rb, rf);
 }
