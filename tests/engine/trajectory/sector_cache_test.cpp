@@ -35,6 +35,24 @@ trajectory::Model jaynes_cummings(std::function<Complex(double)> g_of_t, double 
   return m;
 }
 
+// Trajectory k of `b` three ways on the same stream: with a fresh workspace, and through a
+// workspace that `a` used first (its stretches then reused by `b`); `first` is a's record.
+struct FreshAndShared {
+  trajectory::TrajectoryResult fresh, first, shared;
+};
+FreshAndShared run_fresh_and_shared(const trajectory::Integrator& a, const trajectory::Integrator& b,
+                                    std::uint64_t seed, std::uint64_t k) {
+  auto r_fresh = make_stream(seed, StreamPurpose::kTest, k), r_shared = r_fresh, r_a = r_fresh;
+  FreshAndShared out;
+  out.fresh = b.run(r_fresh);
+  trajectory::Workspace ws;
+  out.first = a.run(r_a, ws);
+  out.shared = b.run(r_shared, ws);
+  REQUIRE(out.fresh.summary.ok());
+  REQUIRE(out.shared.summary.ok());
+  return out;
+}
+
 }  // namespace
 
 TEST_CASE("an adaptive stretch confined to one sector gives the closed-form first jump time", "[integrator]") {
@@ -82,13 +100,7 @@ TEST_CASE("stretches reused across integrators give the records of fresh workspa
   auto b = jaynes_cummings([](double t) { return Complex(2.0 + 1.5 * std::sin(0.8 * t)); }, kappa, gamma, 40);
   trajectory::Integrator ia(a), ib(b);
   for (std::uint64_t k = 0; k < 5; ++k) {
-    auto r_fresh = make_stream(seed, StreamPurpose::kTest, k), r_shared = r_fresh, r_a = r_fresh;
-    const auto fresh = ib.run(r_fresh);
-    trajectory::Workspace ws;
-    const auto first = ia.run(r_a, ws);
-    const auto shared = ib.run(r_shared, ws);
-    REQUIRE(fresh.summary.ok());
-    REQUIRE(shared.summary.ok());
+    const auto [fresh, first, shared] = run_fresh_and_shared(ia, ib, seed, k);
     REQUIRE(first.jumps.size() > 0);
     REQUIRE(shared.jumps.size() == fresh.jumps.size());
     for (std::size_t j = 0; j < fresh.jumps.size(); ++j) {
@@ -134,13 +146,7 @@ TEST_CASE("a reused stretch's excitation-leak estimate equals a fresh one", "[in
   trajectory::Integrator ia(driven([](double) { return Complex(0.3); })),
       ib(driven([](double t) { return Complex(0.3 + 0.2 * std::sin(0.5 * t)); }));
   for (std::uint64_t k = 0; k < 4; ++k) {
-    auto r_fresh = make_stream(seed, StreamPurpose::kTest, k), r_shared = r_fresh, r_a = r_fresh;
-    const auto fresh = ib.run(r_fresh);
-    trajectory::Workspace ws;
-    const auto first = ia.run(r_a, ws);
-    const auto shared = ib.run(r_shared, ws);
-    REQUIRE(fresh.summary.ok());
-    REQUIRE(shared.summary.ok());
+    const auto [fresh, first, shared] = run_fresh_and_shared(ia, ib, seed, k);
     CHECK(fresh.summary.excitation_leak_max > 0.0);
     CHECK(shared.summary.excitation_leak_max == fresh.summary.excitation_leak_max);
     CHECK(first.summary.excitation_leak_max != fresh.summary.excitation_leak_max);
