@@ -6,6 +6,7 @@
 #include <sstream>
 
 #include "engine/common/errors.h"
+#include "engine/operators/content_key.h"
 
 namespace flyby::channels {
 
@@ -60,29 +61,10 @@ std::vector<double> group_key(const std::vector<space::Subsystem>& subsystems, c
                               const std::vector<const operators::Operator*>& channel_ops,
                               const std::vector<const operators::Operator*>& decay_terms, double relative_tolerance) {
   std::vector<double> key;
-  auto cplx = [&](operators::Complex c) {
-    key.push_back(c.real());
-    key.push_back(c.imag());
+  const auto position_in_group = [&](space::SubsystemId id) {
+    return double(std::find(group.begin(), group.end(), id) - group.begin());
   };
-  auto op_key = [&](const operators::Operator& op) {
-    key.push_back(double(op.terms().size()));
-    for (const auto& pt : op.terms()) {
-      cplx(pt.weight);
-      key.push_back(double(pt.factors.size()));
-      for (const auto& f : pt.factors) {
-        key.push_back(double(std::find(group.begin(), group.end(), f.target) - group.begin()));
-        key.push_back(double(f.matrix.rows()));
-        key.push_back(double(f.matrix.cols()));
-        const operators::Complex* d = f.matrix.data();
-        for (long k = 0; k < f.matrix.size(); ++k)
-          if (d[k] != operators::Complex(0.0)) {
-            key.push_back(double(k));
-            cplx(d[k]);
-          }
-        key.push_back(-1.0);
-      }
-    }
-  };
+  auto op_key = [&](const operators::Operator& op) { operators::append_content_key(op, position_in_group, key); };
   key.push_back(relative_tolerance);
   key.push_back(double(group.size()));
   for (auto id : group) {

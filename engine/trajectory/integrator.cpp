@@ -13,6 +13,7 @@
 #include <sstream>
 
 #include "engine/common/errors.h"
+#include "engine/operators/content_key.h"
 #include "engine/trajectory/excitation_leak.h"
 #include "engine/trajectory/phase_factors.h"
 
@@ -329,25 +330,8 @@ std::vector<double> stretch_signature(const Model& m, const Options& opt, const 
     sig.push_back(c.real());
     sig.push_back(c.imag());
   };
-  auto op_sig = [&](const operators::Operator& op) {
-    sig.push_back(double(op.terms().size()));
-    for (const auto& pt : op.terms()) {
-      cplx(pt.weight);
-      sig.push_back(double(pt.factors.size()));
-      for (const auto& f : pt.factors) {
-        sig.push_back(double(f.target));
-        sig.push_back(double(f.matrix.rows()));
-        sig.push_back(double(f.matrix.cols()));
-        const Complex* d = f.matrix.data();
-        for (long k = 0; k < f.matrix.size(); ++k)
-          if (d[k] != Complex(0.0)) {
-            sig.push_back(double(k));
-            cplx(d[k]);
-          }
-        sig.push_back(-1.0);
-      }
-    }
-  };
+  const auto as_is = [](space::SubsystemId id) { return double(id); };
+  auto op_sig = [&](const operators::Operator& op) { operators::append_content_key(op, as_is, sig); };
   sig.push_back(opt.exact_exponential ? 1.0 : 0.0);
   sig.push_back(double(opt.max_exact_dimension));
   sig.push_back(opt.max_eigenvector_condition);
