@@ -415,7 +415,7 @@ struct BlockContext {
   // over (each process computes one block at a time). Fresh ones per block cost the 2-rank run
   // of thermal_beam_resonator.toml (59 blocks, against 3 in one process) 28 % more CPU
   // (docs/performance.md, "MPI").
-  mutable std::vector<trajectory::Workspace> workspaces;
+  mutable ensemble::WorkspacePool workspaces;
 };
 
 ItemResult run_item(const BlockContext& c, const Item& it, trajectory::Workspace& ws) {

@@ -83,7 +83,7 @@ TEST_CASE("workspaces kept in a pool carry their stretch caches to the next map 
     return n;
   };
   const int threads = GENERATE(1, 2);
-  std::vector<trajectory::Workspace> pool;
+  ensemble::WorkspacePool pool;
   const auto a = ensemble::map_ordered<trajectory::TrajectoryResult>(16, threads, by_first, pool);
   CHECK(pool.size() == std::size_t(threads));
   CHECK(decompositions(a) > 0);
