@@ -28,7 +28,9 @@ namespace {
 constexpr Complex kI{0.0, 1.0};
 
 // Everything fixed during one stretch: layout, control values and the matrices built from them.
-struct Stretch {
+// Cache-line aligned (with its shared_ptr count, which every lookup touches) so that the
+// stretches of two threads never share a line (docs/performance.md, two-level workload).
+struct alignas(64) Stretch {
   std::vector<SubsystemId> present;
   std::vector<Complex> controls;
   space::Layout layout;
@@ -128,7 +130,7 @@ struct Buffers {
   std::vector<double> weights;
 };
 
-struct StretchCache {
+struct alignas(64) StretchCache {  // per thread, written at every lookup: own cache lines
   Buffers buffers;
   // Most recently used last. Entries of earlier Integrators stay: a new one whose stretch has
   // the same signature (e.g. the next atom of a beam, same sublevels and couplings, other
